@@ -1,0 +1,31 @@
+# Two commands from nothing: `make demo` and `make test`. Each creates .venv if missing.
+PYTHON ?= python3
+VENV   := .venv
+BIN    := $(VENV)/bin
+STAMP  := $(VENV)/.installed
+
+.PHONY: demo test lint bench clean venv
+
+$(STAMP): pyproject.toml
+	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -e '.[postgres,mariadb,test]'
+	touch $(STAMP)
+
+venv: $(STAMP)
+
+demo: $(STAMP)
+	$(BIN)/convmon demo
+
+test: $(STAMP)
+	$(BIN)/python -m pytest monitor tests
+
+lint: $(STAMP)
+	$(BIN)/ruff check monitor tests sample_historian
+	$(BIN)/ruff format --check monitor tests sample_historian
+
+bench: $(STAMP)
+	$(BIN)/python -m tests.benchmarks
+
+clean:
+	rm -rf $(VENV) build *.egg-info sample_historian/*.db var
