@@ -8,12 +8,14 @@ with pint.
 
 from __future__ import annotations
 
+import re
 from functools import lru_cache
 
 import numpy as np
 
 from .errors import ConfigError
 
+_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*)$")
 TEMPERATURE_UNITS = ("K", "degC", "degF")
 ZERO_CELSIUS_K = 273.15
 
@@ -88,7 +90,11 @@ def parse_quantity(text: str, si_unit: str, *, path=None, key: str | None = None
         raise ConfigError(f"expected a quantity with its unit, e.g. '{si_unit}', got {text!r}",
                           path=path, key=key)
     try:
-        q = ureg.Quantity(text)
+        m = _NUMBER.match(text)
+        if not m or not m.group(2).strip():
+            raise ValueError("expected a number followed by its unit")
+        # magnitude and unit apart, so offset units such as degC are accepted
+        q = ureg.Quantity(float(m.group(1)), m.group(2).strip())
         return float(q.to(si_unit).magnitude)
     except (pint.errors.PintError, ValueError, TypeError, AttributeError) as exc:
         raise ConfigError(f"cannot read {text!r} as a quantity in {si_unit}: {exc}",
