@@ -26,8 +26,6 @@ Concentrations are in mol/L, times in s, ``k_ref`` in s^-1 (L/mol)^(order-1).
 from __future__ import annotations
 
 from dataclasses import dataclass
-from functools import cached_property
-
 import numpy as np
 from scipy.special import exprel
 
@@ -114,25 +112,29 @@ class PowerLaw(SeparableLaw):
     def G(self, X):
         if self.epsilon:
             return _tabulated(self).G(X)
-        L = np.log1p(-np.asarray(X, dtype=float))  # ln(1-X) <= 0
-        n = self.order
-        return -L * exprel((1.0 - n) * L)
+        return power_G(X, self.order)
 
     def G_inv(self, y):
         if self.epsilon:
             return _tabulated(self).G_inv(y)
-        y = np.asarray(y, dtype=float)
-        n = self.order
-        v = (n - 1.0) * y
-        if n < 1.0:
-            # finite time to complete conversion: G(1) = 1/(1-n)
-            done = v <= -1.0
-            v = np.where(done, -0.5, v)
-            X = -np.expm1(-y * log1prel(v))
-            out = np.where(done, 1.0, X)
-        else:
-            out = -np.expm1(-y * log1prel(v))
-        return out if out.ndim else float(out)
+        return power_G_inv(y, self.order)
+
+
+def power_G(X, order):
+    """``G(X)`` of the power law; ``order`` may be an array (broadcasts) [-]."""
+    L = np.log1p(-np.asarray(X, dtype=float))  # ln(1-X) <= 0
+    out = -L * exprel((1.0 - np.asarray(order, dtype=float)) * L)
+    return out if np.ndim(out) else float(out)
+
+
+def power_G_inv(y, order):
+    """Inverse of `power_G`; orders below 1 reach X = 1 at ``G = 1/(1-n)`` [-]."""
+    y = np.asarray(y, dtype=float)
+    v = (np.asarray(order, dtype=float) - 1.0) * y
+    done = v <= -1.0
+    X = -np.expm1(-y * log1prel(np.where(done, -0.5, v)))
+    out = np.where(done, 1.0, X)
+    return out if np.ndim(out) else float(out)
 
 
 @dataclass(frozen=True)
@@ -339,4 +341,4 @@ def make_law(rate_law: str, *, order: float = 1.0, theta_b: float | None = None,
 
 
 __all__ = ["LAWS", "PowerLaw", "BimolecularLaw", "AutocatalyticLaw", "ReversibleLaw",
-           "SeparableLaw", "make_law", "log1prel", "cached_property"]
+           "SeparableLaw", "make_law", "log1prel", "power_G", "power_G_inv"]

@@ -150,23 +150,26 @@ class ThetaTrace:
             arr[: self._n] = old[: self._n]
             setattr(self, name, arr)
 
-    def extend(self, t_new, T_new) -> None:
-        """Add samples (times [s], temperatures [K]); any order, duplicates ignored."""
+    def extend(self, t_new, T_new) -> int:
+        """Add samples (times [s], temperatures [K]); any order, duplicates ignored.
+
+        Returns the index of the last sample whose integrals did not change.
+        """
         t_new = np.asarray(t_new, dtype=float)
         T_new = np.asarray(T_new, dtype=float)
-        if not len(t_new):
-            return
         n = self._n
+        if not len(t_new):
+            return max(n - 1, 0)
         if n and t_new.min() <= self.t_s[n - 1] or np.any(np.diff(t_new) <= 0):
-            self._merge(t_new, T_new)
-            return
+            return self._merge(t_new, T_new)
         self._grow(n + len(t_new))
         self.t_s[n:n + len(t_new)] = t_new
         self.T_K[n:n + len(t_new)] = T_new
         self._n = n + len(t_new)
         self._integrate_from(max(n - 1, 0))
+        return max(n - 1, 0)
 
-    def _merge(self, t_new, T_new) -> None:
+    def _merge(self, t_new, T_new) -> int:
         n = self._n
         t_all = np.concatenate([self.t_s[:n], t_new])
         T_all = np.concatenate([self.T_K[:n], T_new])
@@ -180,8 +183,10 @@ class ThetaTrace:
         self.t_s[: len(t_all)] = t_all
         self.T_K[: len(t_all)] = T_all
         self._n = len(t_all)
-        self.gaps = [g for g in self.gaps if g.end_s <= t_all[max(first_changed - 1, 0)]]
-        self._integrate_from(max(first_changed - 1, 0))
+        i0 = max(first_changed - 1, 0)
+        self.gaps = [g for g in self.gaps if g.end_s <= t_all[i0]]
+        self._integrate_from(i0)
+        return i0
 
     def _integrate_from(self, i0: int) -> None:
         n = self._n

@@ -1,0 +1,173 @@
+"""One batch's state: its temperature trace (as running integrals) and its assays.
+
+Updating costs O(new samples). The state knows nothing of databases or clocks.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..kinetics import Kinetics
+from ..physics.arrhenius import arrhenius_factor, equilibrium_constant
+from ..physics.trace import ThetaTrace, reversible_segments, segment_integrals, step_reversible
+
+
+@dataclass(frozen=True)
+class RecipeModel:
+    """What the estimator needs of a recipe (SI: s, K, mol/L)."""
+
+    name: str
+    kinetics: Kinetics
+    target_conversion: float = 0.95
+    assay_kind: str = "concentration"
+    assay_sd: float = 0.02
+    initial_concentration: float | None = None
+    temperature_plan: tuple = ()
+
+    @classmethod
+    def from_config(cls, recipe, kinetics: Kinetics) -> RecipeModel:
+        return cls(recipe.name, kinetics, recipe.target_conversion, recipe.assay_kind,
+                   recipe.assay_sd, recipe.initial_concentration, recipe.temperature_plan)
+
+
+@dataclass
+class BatchState:
+    """A running (or finished) batch as the estimator sees it."""
+
+    batch: str
+    unit: str
+    recipe: RecipeModel
+    start_s: float
+    c_a0: float
+    end_s: float | None = None
+    charge_from_tag: bool = True
+    max_gap_s: float = 300.0
+    trace: ThetaTrace = field(init=False)
+    assay_t_s: np.ndarray = field(default_factory=lambda: np.empty(0))
+    assay_value: np.ndarray = field(default_factory=lambda: np.empty(0))
+    # reversible law only: X on a fixed grid of ln(activity), at each trace sample
+    phi_grid: np.ndarray = field(default_factory=lambda: np.empty(0))
+    x_grid: np.ndarray = field(default_factory=lambda: np.empty((0, 0)))
+
+    def __post_init__(self):
+        kin = self.recipe.kinetics
+        self.trace = ThetaTrace(kin.ea_j_per_mol, kin.t_ref_k, max_gap_s=self.max_gap_s)
+        if not kin.law.separable:
+            sd = prior_sd(kin)
+            self.phi_grid = np.linspace(-8 * sd, 8 * sd, 161)
+            self.x_grid = np.zeros((0, len(self.phi_grid)))
+
+    @property
+    def kinetics(self) -> Kinetics:
+        return self.recipe.kinetics
+
+    def add_temperature(self, t_s, T_K) -> None:
+        """Add temperature samples [s], [K] (samples before the start are ignored)."""
+        t_s = np.asarray(t_s, dtype=float)
+        keep = t_s >= self.start_s
+        if self.end_s is not None:
+            keep &= t_s <= self.end_s
+        i0 = self.trace.extend(t_s[keep], np.asarray(T_K, dtype=float)[keep])
+        if not self.kinetics.law.separable:
+            self._advance_reversible(i0)
+
+    def _advance_reversible(self, i0: int) -> None:
+        """X on the activity grid from sample ``i0`` (unchanged) to the end of the trace."""
+        tr, kin, law = self.trace, self.kinetics, self.kinetics.law
+        n = len(tr)
+        if n == 0:
+            return
+        i0 = min(i0, len(self.x_grid) - 1) if len(self.x_grid) else 0
+        x0 = self.x_grid[i0] if len(self.x_grid) else np.zeros(len(self.phi_grid))
+        C, A = reversible_segments(tr.t_s[i0:n], tr.T_K[i0:n], kin.ea_j_per_mol, kin.t_ref_k,
+                                   kin.k_ref, law.k_eq_ref, law.dh_rxn_j_per_mol, law.theta_r)
+        steps = step_reversible(x0, np.exp(self.phi_grid), C, A)
+        self.x_grid = np.vstack([self.x_grid[:i0], x0[None, :], steps])
+
+    def add_assays(self, t_s, values) -> None:
+        """Add assays at their sample times [s] (any arrival order; a repeat replaces)."""
+        t = np.concatenate([self.assay_t_s, np.asarray(t_s, dtype=float)])
+        v = np.concatenate([self.assay_value, np.asarray(values, dtype=float)])
+        keep = t >= self.start_s
+        if self.end_s is not None:
+            keep &= t <= self.end_s
+        t, v = t[keep], v[keep]
+        order = np.argsort(t, kind="stable")
+        t, v = t[order], v[order]
+        last = np.concatenate([np.diff(t) > 0, [True]])  # the latest value for a time wins
+        self.assay_t_s, self.assay_value = t[last], v[last]
+
+    # ---- model read-outs
+    def theta_at(self, t_s) -> np.ndarray:
+        """``Theta`` [s] at times, holding the last temperature after the last sample."""
+        tr = self.trace
+        t_s = np.asarray(t_s, dtype=float)
+        n = len(tr)
+        if n == 0:
+            return np.zeros_like(t_s)
+        ts, th = tr.t_s[:n], tr.theta[:n]
+        out = np.interp(t_s, ts, th)
+        after = t_s > ts[-1]
+        if np.any(after):
+            kin = self.kinetics
+            f_last = arrhenius_factor(tr.T_K[n - 1], kin.ea_j_per_mol, kin.t_ref_k)
+            out = np.where(after, th[-1] + (t_s - ts[-1]) * f_last, out)
+        return out
+
+    def rate_scale(self) -> float:
+        """``k_ref * s(C_A0)``: multiplies ``alpha * Theta`` to give ``G(X)`` [-/s]."""
+        kin = self.kinetics
+        return kin.k_ref * kin.law.scale(self.c_a0)
+
+    def conversion_at(self, t_s, alpha: float | np.ndarray = 1.0):
+        """Model conversion at times for activity ``alpha`` (arrays broadcast) [-]."""
+        law = self.kinetics.law
+        if law.separable:
+            return law.G_inv(np.multiply.outer(alpha, self.theta_at(t_s)) * self.rate_scale())
+        return self._reversible_at(t_s, alpha)
+
+    def _reversible_at(self, t_s, alpha):
+        """X (len(alpha) x len(t)) from the activity grid; T held after the last sample."""
+        kin, law, tr = self.kinetics, self.kinetics.law, self.trace
+        n = len(tr)
+        t_s = np.atleast_1d(np.asarray(t_s, dtype=float))
+        phi = np.log(np.atleast_1d(np.asarray(alpha, dtype=float)))
+        if n == 0:
+            return np.zeros((len(phi), len(t_s)))
+        ts = tr.t_s[:n]
+        nodes = np.empty((len(t_s), len(self.phi_grid)))
+        for j, t in enumerate(t_s):
+            if t <= ts[-1]:
+                i = int(np.clip(np.searchsorted(ts, t, side="right") - 1, 0, max(n - 2, 0)))
+                frac = 0.0 if n < 2 else (t - ts[i]) / (ts[i + 1] - ts[i])
+                hi = self.x_grid[min(i + 1, n - 1)]
+                nodes[j] = self.x_grid[i] + np.clip(frac, 0.0, 1.0) * (hi - self.x_grid[i])
+            else:
+                C, A = reversible_segments([ts[-1], t], [tr.T_K[n - 1]] * 2, kin.ea_j_per_mol,
+                                           kin.t_ref_k, kin.k_ref, law.k_eq_ref,
+                                           law.dh_rxn_j_per_mol, law.theta_r)
+                nodes[j] = step_reversible(self.x_grid[-1], np.exp(self.phi_grid), C, A)[-1]
+        return np.stack([np.interp(phi, self.phi_grid, nodes[j]) for j in range(len(t_s))],
+                        axis=1)
+
+    def equilibrium_conversion(self, T_K) -> float:
+        law, kin = self.kinetics.law, self.kinetics
+        return float(law.x_eq(equilibrium_constant(T_K, law.k_eq_ref, law.dh_rxn_j_per_mol,
+                                                   kin.t_ref_k)))
+
+    def predict_assays(self, phi: np.ndarray, t_s: np.ndarray) -> np.ndarray:
+        """Predicted assays (m phi values x n times) in assay units."""
+        X = self.conversion_at(t_s, np.exp(phi))
+        if self.recipe.assay_kind == "conversion":
+            return X
+        return self.c_a0 * (1.0 - X)
+
+
+def prior_sd(kin: Kinetics) -> float:
+    """Prior sd of ``ln alpha``: batch-to-batch spread plus the ``ln k_ref`` uncertainty."""
+    return float(np.hypot(max(kin.activity_sd, 1e-3), kin.stderr_k_ref / kin.k_ref))
+
+
+__all__ = ["BatchState", "RecipeModel", "prior_sd", "segment_integrals"]
