@@ -58,6 +58,7 @@ class HistorianConfig:
     statement_timeout_s: float = 120.0
     fetch_rows: int = 50_000
     late_window_s: float = 3600.0
+    late_window_rows: int = 5000
     safety_lag_s: float = 5.0
     retries: int = 3
 
@@ -305,6 +306,7 @@ def _historian(sec: _Section, base: Path) -> HistorianConfig:
         statement_timeout_s=sec.number("statement_timeout_s", 120.0, positive=True),
         fetch_rows=int(sec.number("fetch_rows", 50_000, low=100)),
         late_window_s=sec.number("late_window_s", 3600.0, low=0),
+        late_window_rows=int(sec.number("late_window_rows", 5000, low=0)),
         safety_lag_s=sec.number("safety_lag_s", 5.0, low=0),
         retries=int(sec.number("retries", 3, low=0, high=100)),
     )

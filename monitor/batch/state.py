@@ -11,7 +11,8 @@ import numpy as np
 
 from ..kinetics import Kinetics
 from ..physics.arrhenius import arrhenius_factor, equilibrium_constant
-from ..physics.trace import ThetaTrace, reversible_segments, segment_integrals, step_reversible
+from ..physics.trace import (ThetaTrace, refine_trace, reversible_segments, segment_integrals,
+                             step_reversible)
 
 
 @dataclass(frozen=True)
@@ -81,9 +82,12 @@ class BatchState:
             return
         i0 = min(i0, len(self.x_grid) - 1) if len(self.x_grid) else 0
         x0 = self.x_grid[i0] if len(self.x_grid) else np.zeros(len(self.phi_grid))
-        C, A = reversible_segments(tr.t_s[i0:n], tr.T_K[i0:n], kin.ea_j_per_mol, kin.t_ref_k,
+        # long intervals (gaps, coarse traces) are cut: the step freezes X* per interval
+        scale = max(abs(kin.ea_j_per_mol), abs(law.dh_rxn_j_per_mol), 1.0)
+        t_f, T_f, at = refine_trace(tr.t_s[i0:n], tr.T_K[i0:n], scale, kin.t_ref_k)
+        C, A = reversible_segments(t_f, T_f, kin.ea_j_per_mol, kin.t_ref_k,
                                    kin.k_ref, law.k_eq_ref, law.dh_rxn_j_per_mol, law.theta_r)
-        steps = step_reversible(x0, np.exp(self.phi_grid), C, A)
+        steps = step_reversible(x0, np.exp(self.phi_grid), C, A)[at[1:] - 1]
         self.x_grid = np.vstack([self.x_grid[:i0], x0[None, :], steps])
 
     def add_assays(self, t_s, values) -> None:

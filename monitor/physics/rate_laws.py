@@ -122,8 +122,13 @@ class PowerLaw(SeparableLaw):
 
 def power_G(X, order):
     """``G(X)`` of the power law; ``order`` may be an array (broadcasts) [-]."""
-    L = np.log1p(-np.asarray(X, dtype=float))  # ln(1-X) <= 0
-    out = -L * exprel((1.0 - np.asarray(order, dtype=float)) * L)
+    order = np.asarray(order, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        L = np.log1p(-np.asarray(X, dtype=float))  # ln(1-X) <= 0
+        out = -L * exprel((1.0 - order) * L)
+    # orders below 1 reach X = 1 at the finite G = 1/(1-n) (inf * 0 above)
+    below = order < 1.0
+    out = np.where(np.isneginf(L) & below, 1.0 / np.where(below, 1.0 - order, 1.0), out)
     return out if np.ndim(out) else float(out)
 
 
@@ -288,6 +293,7 @@ class _Table:
         ratio[0] = 1.0  # h_eps(0) = h_0(0), so the ratio tends to 1 at X = 0
         self._ratio = CubicSpline(u, ratio)
         self.u_end = u_end
+        self._X_nodes, self._G_nodes = X, G
 
     def _u(self, X):
         return -np.log1p(-np.minimum(X / self.x_max, 1.0 - 1e-16))
@@ -299,13 +305,27 @@ class _Table:
         return out if out.ndim else float(out)
 
     def G_inv(self, y):
+        # Bracket y between table nodes (G increases with X), then Newton steps kept
+        # inside the bracket (bisection otherwise): plain Newton from the constant-volume
+        # guess can overshoot to X ~ x_max, where h ~ 0 stalls it or G is not finite.
         y = np.asarray(y, dtype=float)
-        X = self.base.G_inv(y / self._ratio(0.0))
-        for _ in range(30):
-            X = np.clip(X - (self.G(X) - y) * self.law.h(X), 0.0, self.x_max * (1 - 1e-15))
-            r = np.abs(self.G(X) - y) / np.maximum(np.abs(y), 1e-300)
-            if np.all(r < 1e-12):
+        Xn, Gn = self._X_nodes, self._G_nodes
+        i = np.clip(np.searchsorted(Gn, y) - 1, 0, len(Gn) - 2)
+        lo, hi = Xn[i], Xn[i + 1]
+        X = lo + (hi - lo) * np.clip((y - Gn[i]) / (Gn[i + 1] - Gn[i]), 0.0, 1.0)
+        for _ in range(100):
+            g = self.G(X) - y
+            if np.all(np.abs(g) <= 1e-13 * np.maximum(np.abs(y), 1e-300)):
                 break
+            lo = np.where(g <= 0, X, lo)
+            hi = np.where(g >= 0, X, hi)
+            step = X - g * self.law.h(X)
+            X = np.where((step > lo) & (step < hi), step, (lo + hi) / 2)
+        # beyond the table (u > u_end) the ratio is constant to within rounding
+        far = y >= Gn[-1]
+        if np.any(far):
+            X_far = np.minimum(self.base.G_inv(y / float(self._ratio(self.u_end))), self.x_max)
+            X = np.where(far, X_far, X)
         return X if X.ndim else float(X)
 
 

@@ -30,6 +30,8 @@ from .arrhenius import R_J_PER_MOL_K
 
 #: Largest change of the Arrhenius exponent over one quadrature cell [-].
 MAX_EXPONENT_STEP = 0.05
+#: Largest exponent change over one step of the reversible law (`refine_trace`) [-].
+REVERSIBLE_EXPONENT_STEP = 0.0025
 _GL_X, _GL_W = np.polynomial.legendre.leggauss(4)
 
 
@@ -241,7 +243,9 @@ def reversible_segments(t_s, T_K, ea_j_per_mol, t_ref_k, k_ref, k_eq_ref, dh_rxn
     linear in X; with ``C = int k (1 + 1/K) ds`` and ``A = int k (1 - theta_r/K) ds``
     (Gauss-Legendre, as for `segment_integrals`) one step is
     ``X1 = X* + (X0 - X*) exp(-alpha C)``, ``X* = A/C``. The frozen-coefficient error is
-    of second order in the change of ``X*`` over the interval; long intervals are split.
+    of second order in the change of ``X*`` over the interval, so a long interval with a
+    changing temperature must be cut first with `refine_trace` (the quadrature cells here
+    are summed back per interval and do not shorten the step).
 
     Returns
     -------
@@ -263,6 +267,41 @@ def reversible_segments(t_s, T_K, ea_j_per_mol, t_ref_k, k_ref, k_eq_ref, dh_rxn
         owner, n = split
         C, A = (np.bincount(owner, v, minlength=n) for v in (C, A))
     return C, A
+
+
+def refine_trace(t_s, T_K, scale_j_per_mol, t_ref_k, max_step=REVERSIBLE_EXPONENT_STEP):
+    """Cut intervals whose exponent ``scale/R (1/T)`` changes by more than ``max_step``.
+
+    ``T`` stays piecewise linear, so integrals over the refined trace are unchanged.
+    The default step keeps the frozen-coefficient error of `step_reversible` on a
+    coarse trace near that of a 5-s sampled one.
+
+    Returns
+    -------
+    t, T, at : numpy.ndarray
+        Refined times [s] and temperatures [K]; ``at`` holds the index of each
+        original sample in the refined arrays.
+
+    Examples
+    --------
+    >>> t, T, at = refine_trace([0.0, 60.0], [343.15, 343.15], 65e3, 343.15)
+    >>> t.tolist(), at.tolist()
+    ([0.0, 60.0], [0, 1])
+    """
+    t = np.asarray(t_s, dtype=float)
+    T = np.asarray(T_K, dtype=float)
+    if len(t) < 2:
+        return t, T, np.arange(len(t))
+    beta = scale_j_per_mol / R_J_PER_MOL_K
+    m = np.maximum(1, np.ceil(beta * np.abs(1.0 / T[:-1] - 1.0 / T[1:]) / max_step)).astype(int)
+    at = np.concatenate([[0], np.cumsum(m)])
+    if at[-1] == len(t) - 1:
+        return t, T, at
+    owner = np.repeat(np.arange(len(m)), m)
+    frac = (np.arange(at[-1]) - at[owner]) / m[owner]
+    t_f = np.append(t[owner] + frac * np.diff(t)[owner], t[-1])
+    T_f = np.append(T[owner] + frac * np.diff(T)[owner], T[-1])
+    return t_f, T_f, at
 
 
 def step_reversible(X0, alpha, C, A):
