@@ -100,7 +100,7 @@ class BatchState:
         t, v = t[keep], v[keep]
         order = np.argsort(t, kind="stable")
         t, v = t[order], v[order]
-        last = np.concatenate([np.diff(t) > 0, [True]])  # the latest value for a time wins
+        last = np.concatenate([np.diff(t) > 0, [True]])[: len(t)]  # latest value for a time wins
         self.assay_t_s, self.assay_value = t[last], v[last]
 
     # ---- model read-outs

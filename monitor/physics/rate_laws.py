@@ -270,7 +270,7 @@ class _Table:
     ``r(u) = G_eps(X)/G_0(X)`` is smooth and bounded in ``u = -ln(1 - X/x_max)``, so a
     cubic spline of it on a grid keeps full relative accuracy up to complete conversion;
     each cell of ``G_eps`` is integrated by 8-point Gauss-Legendre quadrature. The inverse
-    refines a first guess by Newton steps (``dG/dX = 1/h``).
+    brackets ``y`` between nodes and refines by safeguarded Newton steps (``dG/dX = 1/h``).
     """
 
     def __init__(self, law: SeparableLaw, n: int = 1500, u_end: float = 25.0):
@@ -280,7 +280,9 @@ class _Table:
 
         self.law, self.base = law, replace(law, epsilon=0.0)
         self.x_max = law.x_max
-        u = np.linspace(0.0, u_end, n)
+        # uniform in u, and geometric towards X = 0 too, where h can vary on the scale of
+        # a small seed (autocatalytic theta_r): cells must be short against it
+        u = np.union1d(np.linspace(0.0, u_end, n), np.geomspace(1e-9, u_end, n // 2))
         X = self.x_max * -np.expm1(-u)
         nodes, weights = np.polynomial.legendre.leggauss(8)
         a, b = X[:-1], X[1:]

@@ -69,7 +69,9 @@ def criticality_class(t_process_k, mtsr_k, mtt_k, t_d24_k) -> int:
     4
     """
     if mtsr_k <= mtt_k:
-        return 1 if mtt_k <= t_d24_k else 2
+        if mtt_k <= t_d24_k:
+            return 1
+        return 2 if mtsr_k <= t_d24_k else 5  # T_D24 < MTSR < MTT is class 5, not 2
     if mtsr_k <= t_d24_k:
         return 3
     return 4 if mtt_k <= t_d24_k else 5

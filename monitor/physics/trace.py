@@ -42,8 +42,8 @@ def _cells(t0, t1, T0, T1, ea, t_ref_k):
     if np.all(m == 1):
         return t0, t1, T0, T1, None
     owner = np.repeat(np.arange(len(t0)), m)
-    frac0 = np.concatenate([np.arange(k) / k for k in m])
-    frac1 = np.concatenate([np.arange(1, k + 1) / k for k in m])
+    j = np.arange(len(owner)) - np.repeat(np.cumsum(m) - m, m)  # cell number within its interval
+    frac0, frac1 = j / m[owner], (j + 1) / m[owner]
     dt, dT = (t1 - t0)[owner], (T1 - T0)[owner]
     return (t0[owner] + frac0 * dt, t0[owner] + frac1 * dt,
             T0[owner] + frac0 * dT, T0[owner] + frac1 * dT, (owner, len(t0)))

@@ -1,0 +1,279 @@
+"""The live monitor: the poll cycle and its scheduler.
+
+One cycle: read new rows -> update each running batch incrementally ->
+evaluate alerts -> commit results and watermark in one transaction ->
+write-back. A failing cycle changes nothing and is retried next time. The
+clock is injected (``clock()`` returns epoch seconds) so tests and the demo
+replay control time.
+"""
+
+from __future__ import annotations
+
+import json
+import logging
+import os
+import signal
+import time
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from .api import build_state, recipe_model
+from .batch.estimator import EstimatorSettings, estimate
+from .config import Config
+from .errors import ConfigError, LockError, MonitorError
+from .historian.model import Batch
+from .kinetics import load_kinetics
+from .outputs.formats import estimate_json
+from .store.db import Store
+
+log = logging.getLogger(__name__)
+
+
+@dataclass
+class CycleReport:
+    rows_read: int = 0
+    running: int = 0
+    estimates_added: int = 0
+    alerts_added: int = 0
+    completed: list = field(default_factory=list)
+    timings: dict = field(default_factory=dict)
+
+
+class Monitor:
+    """In-memory batch states between cycles; rebuilt from store and historian on start."""
+
+    def __init__(self, cfg: Config, *, clock: Callable[[], float] = time.time, reader=None,
+                 store: Store | None = None, writer=None):
+        from .historian.reader import HistorianReader
+
+        self.cfg = cfg
+        self.clock = clock
+        self.reader = reader or HistorianReader(cfg)
+        self.store = store or Store(cfg.store.url)
+        self.writer = writer
+        self.settings = EstimatorSettings.from_config(cfg.estimator)
+        self.states: dict = {}
+        self.known: dict[str, Batch] = {}
+        self.models: dict = {}
+        self.watermark = self.store.load_watermark()
+        self._open_alerts = {(a["batch"], a["kind"]): a for a in self.store.open_alerts()}
+        self._store_running = set(self.store.running_batches())
+
+    def _model(self, recipe: str):
+        if recipe not in self.models:
+            self.models[recipe] = recipe_model(self.cfg, recipe)
+        return self.models[recipe]
+
+    def _start_batch(self, b: Batch, until_s: float | None = None):
+        if self.cfg.recipe(b.recipe) is None or self.cfg.unit(b.unit) is None:
+            log.warning("batch %s: recipe %s or unit %s not configured; not monitored",
+                        b.batch, b.recipe, b.unit)
+            return None
+        data = self.reader.read_batch(b, until_s=until_s)
+        state = build_state(self.cfg, data, self._model(b.recipe))
+        self.states[b.batch] = state
+        return state
+
+    def cycle(self) -> CycleReport:
+        """One poll cycle; raises on failure (nothing is committed then)."""
+        rep = CycleReport()
+        now = self.clock()
+        t0 = time.perf_counter()
+        if self.watermark is None:
+            running = [b for b in self.reader.batches()[0] if b.end_s is None]
+            since = min((b.start_s for b in running), default=now)
+            self.watermark = self.reader.initial_watermark(since)
+        poll = self.reader.poll(self.watermark)
+        rep.rows_read = poll.rows_read
+        batches, _problems = self.reader.batches()
+        t_read = time.perf_counter()
+        batch_rows, est_rows, kin_rows, changes = [], [], [], []
+        by_unit: dict = {}
+        for b in batches:
+            self.known[b.batch] = b
+            if b.batch not in self.states:
+                # a past batch is not monitored, unless the store still has it running
+                # (it ended while the monitor was down: it gets its final estimate)
+                if b.end_s is not None and b.batch not in self._store_running:
+                    continue
+                if self._start_batch(b) is None:
+                    continue
+            by_unit.setdefault(b.unit, []).append(b)
+            batch_rows.append({"batch": b.batch, "unit": b.unit, "recipe": b.recipe,
+                               "start_s": b.start_s, "end_s": b.end_s, "state": b.state})
+        for tag, samples in poll.samples.items():
+            role_unit = self.reader._units_by_tag.get(tag)
+            if role_unit is None or not len(samples):
+                continue
+            role, unit = role_unit
+            for b in by_unit.get(unit.name, []):
+                st = self.states[b.batch]
+                st.end_s = b.end_s
+                if role == "temperature":
+                    st.add_temperature(samples.t_s, samples.value)
+                elif role == "assay":
+                    st.add_assays(samples.t_s, samples.value)
+        last_data = None
+        for bs in by_unit.values():
+            for b in bs:
+                st = self.states[b.batch]
+                if len(st.trace) == 0:
+                    continue
+                at = float(st.trace.last_t_s)
+                if b.end_s is not None:
+                    at = min(at, b.end_s)
+                last_data = at if last_data is None else max(last_data, at)
+                rc = self.cfg.recipe(b.recipe)
+                est = estimate(st, at, self.settings, safety=rc.safety)
+                doc = estimate_json(est)
+                est_rows.append(_estimate_row(est, doc))
+                kin_rows.append({"version": st.kinetics.version, "recipe": b.recipe,
+                                 "source": st.kinetics.source, "first_used_s": at})
+                changes.extend(self._alerts(b, est, now))
+                if b.end_s is not None:
+                    rep.completed.append(b.batch)
+        rep.running = sum(1 for b in batches if b.end_s is None and b.batch in self.states)
+        t_est = time.perf_counter()
+        added = self.store.commit_cycle(watermark=poll.watermark, batch_rows=batch_rows,
+                                        estimate_rows=est_rows, alert_changes=changes,
+                                        kinetics_rows=kin_rows, now_s=now, last_data_s=last_data)
+        t_commit = time.perf_counter()
+        self.watermark = poll.watermark
+        for b in rep.completed:
+            self.states.pop(b, None)
+            self._store_running.discard(b)
+        self._store_running.update(r["batch"] for r in batch_rows if r["state"] == "running")
+        if self.writer is not None:
+            self.writer.write(est_rows)
+        rep.estimates_added, rep.alerts_added = added["estimates"], added["alerts"]
+        rep.timings = {"read_s": t_read - t0, "estimate_s": t_est - t_read,
+                       "commit_s": t_commit - t_est}
+        return rep
+
+    def _alerts(self, b: Batch, est, now: float) -> list[dict]:
+        """Raise or clear the alert kinds the estimate shows (advisory)."""
+        conditions = {
+            "assay_mismatch": ("warning", bool(est.mismatched_assays),
+                               "; ".join(w for w in est.warnings if w.startswith("assay-mismatch"))),
+            "target_unreachable": ("warning", est.predicted_end_s is None, est.forecast_note),
+            "stale_data": ("warning", any(w.startswith("temperature stale") for w in est.warnings),
+                           "temperature data stale"),
+        }
+        out = []
+        for kind, (severity, active, message) in conditions.items():
+            key = (b.batch, kind)
+            if active and key not in self._open_alerts:
+                row = {"op": "raise", "batch": b.batch, "kind": kind, "severity": severity,
+                       "state": "open", "raised_at_s": est.at_s, "message": message}
+                self._open_alerts[key] = row
+                out.append(row)
+            elif not active and key in self._open_alerts and "id" in self._open_alerts[key]:
+                out.append({"op": "clear", "id": self._open_alerts.pop(key)["id"],
+                            "cleared_at_s": est.at_s})
+        return out
+
+    def refresh_alert_ids(self) -> None:
+        self._open_alerts = {(a["batch"], a["kind"]): a for a in self.store.open_alerts()}
+
+    def run_cycle_safely(self) -> CycleReport | None:
+        """A cycle for the scheduler: failures are logged, state is rebuilt next time."""
+        try:
+            rep = self.cycle()
+            self.refresh_alert_ids()
+            log.info("cycle: %d rows, %d running, %d estimates", rep.rows_read, rep.running,
+                     rep.estimates_added)
+            return rep
+        except MonitorError as exc:
+            log.warning("cycle failed, retried next time: %s", exc)
+        except Exception:  # a bad row or bug must not stop the service
+            log.exception("cycle failed, retried next time")
+        self.store.record_failure(self.clock(), "cycle failed")
+        # nothing was committed: forget in-memory progress so the next cycle rebuilds
+        self.states.clear()
+        self.known.clear()
+        self.watermark = self.store.load_watermark()
+        self._store_running = set(self.store.running_batches())
+        self.refresh_alert_ids()
+        return None
+
+
+def _estimate_row(est, doc) -> dict:
+    return {"batch": est.batch, "at_s": est.at_s, "conversion": est.conversion,
+            "conversion_sd": est.conversion_sd, "activity": est.activity,
+            "activity_sd": est.activity_sd, "target_conversion": est.target_conversion,
+            "predicted_end_s": est.predicted_end_s, "p10_s": est.predicted_end_p10_s,
+            "p90_s": est.predicted_end_p90_s, "forecast_note": est.forecast_note,
+            "n_assays_used": est.n_assays_used, "warnings": json.dumps(est.warnings),
+            "kinetics_version": est.kinetics_version,
+            "doc": json.dumps(doc, default=str)}
+
+
+class StoreLock:
+    """One monitor per store: an exclusive lock file beside (or named after) the store."""
+
+    def __init__(self, cfg: Config):
+        import hashlib
+
+        digest = hashlib.sha256(cfg.store.url.encode()).hexdigest()[:16]
+        base = Path(os.environ.get("CONVMON_LOCK_DIR", cfg.base_dir / "var"))
+        self.path = base / f"convmon-{digest}.lock"
+        self._fh = None
+
+    def __enter__(self):
+        import fcntl
+
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        self._fh = open(self.path, "a+")  # noqa: SIM115 - held for the life of the service
+        try:
+            fcntl.flock(self._fh, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            self._fh.close()
+            raise LockError(f"another convmon run is already using this store (lock "
+                            f"{self.path}); stop it first") from None
+        self._fh.seek(0)
+        self._fh.truncate()
+        self._fh.write(str(os.getpid()))
+        self._fh.flush()
+        return self
+
+    def __exit__(self, *exc):
+        self._fh.close()
+
+
+def run_service(cfg: Config, *, once: bool = False) -> int:
+    """``convmon run``: APScheduler 3 interval job, one instance, clean shutdown."""
+    if cfg.poll.interval_s <= 0:
+        raise ConfigError("poll.interval_s must be positive", path=cfg.path, key="poll.interval_s")
+    with StoreLock(cfg):
+        monitor = Monitor(cfg)
+        if once:
+            rep = monitor.cycle()
+            log.info("one cycle: %d rows read, %d running, %d estimates added",
+                        rep.rows_read, rep.running, rep.estimates_added)
+            print(f"cycle done: {rep.rows_read} rows read, {rep.running} running batches, "
+                  f"{rep.estimates_added} estimates and {rep.alerts_added} alerts added")
+            return 0
+        from apscheduler.schedulers.blocking import BlockingScheduler
+
+        sched = BlockingScheduler(timezone="UTC")
+        sched.add_job(monitor.run_cycle_safely, "interval", seconds=cfg.poll.interval_s,
+                      max_instances=1, coalesce=True,
+                      misfire_grace_time=int(cfg.poll.misfire_grace_s), id="poll",
+                      next_run_time=None)
+        sched.modify_job("poll", next_run_time=_utcnow())
+
+        def stop(signum, _frame):
+            log.warning("signal %s: stopping after the current cycle", signum)
+            sched.shutdown(wait=True)
+
+        signal.signal(signal.SIGTERM, stop)
+        signal.signal(signal.SIGINT, stop)
+        sched.start()
+    return 0
+
+
+def _utcnow():
+    from datetime import UTC, datetime
+
+    return datetime.now(UTC)

@@ -1,0 +1,87 @@
+"""The commands on the generated sample plant, checked against the generator's own truth."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from datetime import datetime
+
+import pytest
+
+from monitor.api import estimate_batch
+from monitor.config import load_config
+from monitor.service import Monitor
+
+
+def convmon(*args):
+    return subprocess.run([sys.executable, "-m", "monitor", *args], capture_output=True,
+                          text=True)
+
+
+def test_batches_json_matches_the_generator(sample_plant):
+    r = convmon("batches", "--config", str(sample_plant.config_path), "--json")
+    assert r.returncode == 0, r.stderr
+    doc = json.loads(r.stdout)
+    got = {b["batch"]: b for b in doc["batches"]}
+    want = {b["batch"]: b for b in sample_plant.truth["batches"]}
+    assert set(got) == set(want)
+    keys = {"batch", "unit", "recipe", "start", "end", "state", "n_temperature", "n_assays"}
+    for bid, b in got.items():
+        assert keys <= set(b)
+        t = want[bid]
+        assert (b["unit"], b["recipe"], b["state"]) == (t["unit"], t["recipe"], t["state"])
+        assert datetime.fromisoformat(b["start"]) == datetime.fromisoformat(t["start"])
+        if t["end"] is None:
+            assert b["end"] is None
+        else:
+            assert datetime.fromisoformat(b["end"]) == datetime.fromisoformat(t["end"])
+        assert b["n_temperature"] > 100 and b["n_assays"] >= 1
+
+
+def test_estimate_of_running_batches_against_truth(sample_plant):
+    """Conversion within truth ± 0.03 on the plant's running batches (issue acceptance)."""
+    cfg = load_config(sample_plant.config_path)
+    running = [b for b in sample_plant.truth["batches"] if b["state"] == "running"]
+    assert running
+    for tb in running:
+        est, _ = estimate_batch(cfg, tb["batch"])
+        assert abs(est.conversion - tb["conversion_at_export_end"]) < 0.03 + 2 * est.conversion_sd
+
+
+def test_estimate_json_keys_and_at(sample_plant):
+    bid = next(b["batch"] for b in sample_plant.truth["batches"] if b["state"] == "complete")
+    r = convmon("estimate", "--batch", bid, "--config", str(sample_plant.config_path), "--json")
+    assert r.returncode == 0, r.stderr
+    doc = json.loads(r.stdout)
+    for k in ("batch", "unit", "recipe", "at", "start", "conversion", "conversion_sd",
+              "activity", "activity_sd", "target_conversion", "predicted_end",
+              "predicted_end_p10", "predicted_end_p90", "forecast_note", "n_assays_used",
+              "warnings"):
+        assert k in doc
+    bad = convmon("estimate", "--batch", "NO-SUCH", "--config", str(sample_plant.config_path))
+    assert bad.returncode == 2 and "NO-SUCH" in bad.stderr
+
+
+def test_run_once_twice_adds_nothing_the_second_time(sample_plant, tmp_path):
+    cfg_text = sample_plant.config_path.read_text().replace(
+        str(sample_plant.config_path.parent / "convmon.db"), str(tmp_path / "store.db"))
+    p = tmp_path / "c.toml"
+    p.write_text(cfg_text)
+    cfg = load_config(p)
+    first = Monitor(cfg).cycle()
+    assert first.estimates_added >= 1
+    again = Monitor(cfg)
+    second = again.cycle()
+    assert second.estimates_added == 0 and second.alerts_added == 0
+    assert again.store.snapshot() == Monitor(cfg).store.snapshot()
+
+
+def test_second_run_on_same_store_refuses(sample_plant, tmp_path, monkeypatch):
+    from monitor.errors import LockError
+    from monitor.service import StoreLock
+
+    monkeypatch.setenv("CONVMON_LOCK_DIR", str(tmp_path))
+    cfg = load_config(sample_plant.config_path)
+    with StoreLock(cfg), pytest.raises(LockError), StoreLock(cfg):
+        pass
