@@ -52,6 +52,11 @@ class Monitor:
         self.reader = reader or HistorianReader(cfg)
         self.store = store or Store(cfg.store.url)
         self.writer = writer
+        if writer is None and cfg.writeback.enabled:
+            from .outputs.writeback import WriteBack
+
+            self.writer = WriteBack(cfg.writeback)
+        self._wb_backlog: list = []
         self.settings = EstimatorSettings.from_config(cfg.estimator)
         self.states: dict = {}
         self.known: dict[str, Batch] = {}
@@ -88,7 +93,7 @@ class Monitor:
         rep.rows_read = poll.rows_read
         batches, _problems = self.reader.batches()
         t_read = time.perf_counter()
-        batch_rows, est_rows, kin_rows, changes = [], [], [], []
+        batch_rows, est_rows, kin_rows, changes, wb_items = [], [], [], [], []
         by_unit: dict = {}
         for b in batches:
             self.known[b.batch] = b
@@ -128,6 +133,7 @@ class Monitor:
                 est = estimate(st, at, self.settings, safety=rc.safety)
                 doc = estimate_json(est)
                 est_rows.append(_estimate_row(est, doc))
+                wb_items.append((b.unit, est_rows[-1]))
                 kin_rows.append({"version": st.kinetics.version, "recipe": b.recipe,
                                  "source": st.kinetics.source, "first_used_s": at})
                 changes.extend(self._alerts(b, est, now))
@@ -145,7 +151,14 @@ class Monitor:
             self._store_running.discard(b)
         self._store_running.update(r["batch"] for r in batch_rows if r["state"] == "running")
         if self.writer is not None:
-            self.writer.write(est_rows)
+            pending = self._wb_backlog + wb_items
+            try:
+                self.writer.write(pending)
+                self._wb_backlog = []
+            except MonitorError as exc:  # results are safe in the store; retried next cycle
+                log.warning("write-back failed (%d rows kept for the next cycle): %s",
+                            len(pending), exc)
+                self._wb_backlog = pending[-10_000:]
         rep.estimates_added, rep.alerts_added = added["estimates"], added["alerts"]
         rep.timings = {"read_s": t_read - t0, "estimate_s": t_est - t_read,
                        "commit_s": t_commit - t_est}
