@@ -68,13 +68,14 @@ def build_state(cfg: Config, data: BatchData, model: RecipeModel) -> BatchState:
 
 
 def estimate_batch(cfg: Config, batch_id: str, at_s: float | None = None,
-                   now_s: float | None = None) -> tuple[Estimate, Batch]:
+                   now_s: float | None = None, *, reader=None) -> tuple[Estimate, Batch]:
     """Estimate one batch straight from the historian.
 
     A running batch is estimated at ``at_s``, else at ``now_s`` (default: the
     last temperature sample); a completed batch at its end.
     """
-    reader = open_reader(cfg)
+    own = reader is None
+    reader = reader or open_reader(cfg)
     try:
         b = reader.batch(batch_id)
         until = at_s if at_s is not None else b.end_s
@@ -84,7 +85,8 @@ def estimate_batch(cfg: Config, batch_id: str, at_s: float | None = None,
             until = min(at_s, b.end_s)
         data = reader.read_batch(b, until_s=until)
     finally:
-        reader.close()
+        if own:
+            reader.close()
     if len(data.temperature) == 0:
         raise DataQualityError(f"batch {batch_id}: no good temperature samples "
                                f"({_unit_tag(cfg, b.unit)}) in its window")

@@ -460,7 +460,8 @@ def config_from_dict(data: dict, path: Path | None = None) -> Config:
             tag_prefix=wb_sec.get("tag_prefix", str, "CONVMON"),
         )
         if wb.enabled and not wb.url:
-            raise ConfigError("write-back is enabled but has no url", path=path, key="writeback.url")
+            raise ConfigError("write-back is enabled but has no url", path=path,
+                              key="writeback.url")
         wb_sec.finish()
 
     site_sec = root.sub("site")

@@ -23,7 +23,6 @@ from .batch.estimator import EstimatorSettings, estimate
 from .config import Config
 from .errors import ConfigError, LockError, MonitorError
 from .historian.model import Batch
-from .kinetics import load_kinetics
 from .outputs.formats import estimate_json
 from .store.db import Store
 
@@ -168,7 +167,8 @@ class Monitor:
         """Raise or clear the alert kinds the estimate shows (advisory)."""
         conditions = {
             "assay_mismatch": ("warning", bool(est.mismatched_assays),
-                               "; ".join(w for w in est.warnings if w.startswith("assay-mismatch"))),
+                               "; ".join(w for w in est.warnings
+                                         if w.startswith("assay-mismatch"))),
             "target_unreachable": ("warning", est.predicted_end_s is None, est.forecast_note),
             "stale_data": ("warning", any(w.startswith("temperature stale") for w in est.warnings),
                            "temperature data stale"),

@@ -85,3 +85,36 @@ def test_second_run_on_same_store_refuses(sample_plant, tmp_path, monkeypatch):
     cfg = load_config(sample_plant.config_path)
     with StoreLock(cfg), pytest.raises(LockError), StoreLock(cfg):
         pass
+
+
+def test_forecast_calibration_over_the_sample_history(sample_plant):
+    """Mid-batch (at the third assay) over every complete batch of the sample plant.
+
+    The generator's truth is independent of the estimator (its own solve_ivp path). An
+    80 % band (P10-P90) should hold the true time to target in about 80 % of batches;
+    we require 60-95 % so the check is neither trivially passed nor flaky.
+    """
+    from monitor.api import open_reader
+
+    cfg = load_config(sample_plant.config_path)
+    reader = open_reader(cfg)
+    inside, dx, n = 0, [], 0
+    try:
+        for tb in sample_plant.truth["batches"]:
+            if tb["state"] != "complete" or len(tb["assays"]) < 4:
+                continue
+            a = tb["assays"][2]
+            at = datetime.fromisoformat(a["ts"]).timestamp() + 1.0
+            est, _ = estimate_batch(cfg, tb["batch"], at, reader=reader)
+            t_true = datetime.fromisoformat(tb["time_to_target"]).timestamp()
+            n += 1
+            inside += (est.predicted_end_p10_s is not None
+                       and est.predicted_end_p10_s <= t_true <= est.predicted_end_p90_s)
+            dx.append(abs(est.conversion - a["true_conversion"]))
+    finally:
+        reader.close()
+    assert n >= 40
+    print(f"\ncalibration: P10-P90 holds the true end in {inside}/{n} batches; "
+          f"|X - X_true| mean {sum(dx) / n:.4f}, max {max(dx):.4f}")
+    assert 0.60 <= inside / n <= 0.95
+    assert max(dx) < 0.03

@@ -15,7 +15,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..physics.trace import plan_temperature, reversible_segments, segment_integrals, step_reversible
+from ..physics.trace import (
+    plan_temperature,
+    reversible_segments,
+    segment_integrals,
+    step_reversible,
+)
 from .posterior import ActivityPosterior, activity_posterior
 from .state import BatchState, prior_sd
 

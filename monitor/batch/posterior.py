@@ -1,7 +1,12 @@
 """Posterior of a batch's activity factor from its assays.
 
-``ln alpha ~ N(0, s^2)`` a priori (``s`` from the spread seen in history, plus
-the uncertainty of ``ln k_ref``, with which ``alpha`` is confounded); each assay
+``ln alpha`` has a Student-t prior (``PRIOR_DOF`` degrees of freedom) centred
+on 0 with scale ``s`` (the spread seen in history, plus the uncertainty of
+``ln k_ref``, with which ``alpha`` is confounded). The heavy tails are the
+usual robust choice for a hierarchical prior (Gelman, "Prior distributions for
+variance parameters in hierarchical models", Bayesian Analysis 1 (2006)
+515-534): a batch far from the fleet (a drifting catalyst, a bad charge) is
+followed by its own assays instead of being held near the fleet. Each assay
 ``y_i = f_i(alpha) + e_i`` with ``e_i ~ N(0, sd^2)``. The posterior is evaluated
 on a grid of ``ln alpha`` (exact for any model shape, no optimiser to fail), first
 wide, then refined around its mode.
@@ -51,13 +56,21 @@ class ActivityPosterior:
         return np.interp(u, cdf, edges)
 
 
+PRIOR_DOF = 4.0
+
+
+def log_prior(phi: np.ndarray, prior_sd: float) -> np.ndarray:
+    """Student-t log density of ``ln alpha`` up to a constant [-]."""
+    return -0.5 * (PRIOR_DOF + 1.0) * np.log1p((phi / prior_sd) ** 2 / PRIOR_DOF)
+
+
 def _log_weights(loglik: np.ndarray, phi: np.ndarray, prior_sd: float) -> np.ndarray:
-    lw = loglik - 0.5 * (phi / prior_sd) ** 2
+    lw = loglik + log_prior(phi, prior_sd)
     return lw - lw.max()
 
 
 def activity_posterior(predict: Callable[[np.ndarray], np.ndarray], y: np.ndarray, sd: float,
-                       prior_sd: float, *, mismatch_sigma: float = 4.0, n_grid: int = 801,
+                       prior_sd: float, *, mismatch_sigma: float = 4.0, n_grid: int = 1201,
                        n_fine: int = 241) -> ActivityPosterior:
     """Grid posterior of ``ln alpha``.
 
@@ -77,7 +90,7 @@ def activity_posterior(predict: Callable[[np.ndarray], np.ndarray], y: np.ndarra
     """
     y = np.asarray(y, dtype=float)
     n = len(y)
-    half_width = 8.0 * prior_sd
+    half_width = max(12.0 * prior_sd, 1.5)  # the t prior's tails: alpha from 0.22 to 4.5
     phi = np.linspace(-half_width, half_width, n_grid)
     used = np.ones(n, dtype=bool)
     z = np.zeros(n)

@@ -11,8 +11,13 @@ import numpy as np
 
 from ..kinetics import Kinetics
 from ..physics.arrhenius import arrhenius_factor, equilibrium_constant
-from ..physics.trace import (ThetaTrace, refine_trace, reversible_segments, segment_integrals,
-                             step_reversible)
+from ..physics.trace import (
+    ThetaTrace,
+    refine_trace,
+    reversible_segments,
+    segment_integrals,
+    step_reversible,
+)
 
 
 @dataclass(frozen=True)
@@ -57,7 +62,8 @@ class BatchState:
         self.trace = ThetaTrace(kin.ea_j_per_mol, kin.t_ref_k, max_gap_s=self.max_gap_s)
         if not kin.law.separable:
             sd = prior_sd(kin)
-            self.phi_grid = np.linspace(-8 * sd, 8 * sd, 161)
+            half = max(12.0 * sd, 1.5)  # as wide as the posterior grid (t prior)
+            self.phi_grid = np.linspace(-half, half, 241)
             self.x_grid = np.zeros((0, len(self.phi_grid)))
 
     @property

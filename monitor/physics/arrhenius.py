@@ -38,7 +38,8 @@ def arrhenius_factor(T_K, ea_j_per_mol, t_ref_k):
     >>> float(arrhenius_factor(343.15, 65e3, 343.15))
     1.0
     """
-    return np.exp(-(np.asarray(ea_j_per_mol) / R_J_PER_MOL_K) * (1.0 / np.asarray(T_K) - 1.0 / t_ref_k))
+    beta = np.asarray(ea_j_per_mol) / R_J_PER_MOL_K
+    return np.exp(-beta * (1.0 / np.asarray(T_K) - 1.0 / t_ref_k))
 
 
 def rate_constant(T_K, k_ref, ea_j_per_mol, t_ref_k):

@@ -13,8 +13,21 @@ from collections.abc import Callable
 from datetime import UTC, datetime
 from pathlib import Path
 
-from sqlalchemy import (Column, Float, Integer, MetaData, String, Table, Text, UniqueConstraint,
-                        create_engine, insert, inspect, select, update)
+from sqlalchemy import (
+    Column,
+    Float,
+    Integer,
+    MetaData,
+    String,
+    Table,
+    Text,
+    UniqueConstraint,
+    create_engine,
+    insert,
+    inspect,
+    select,
+    update,
+)
 from sqlalchemy.engine import Engine, make_url
 from sqlalchemy.exc import OperationalError, SQLAlchemyError
 
@@ -29,7 +42,8 @@ batches = Table("batches", meta,
                 Column("state", String(16)))
 estimates = Table("estimates", meta,
                   Column("id", Integer, primary_key=True, autoincrement=True),
-                  Column("batch", String(64), nullable=False), Column("at_s", Float, nullable=False),
+                  Column("batch", String(64), nullable=False),
+                  Column("at_s", Float, nullable=False),
                   Column("conversion", Float), Column("conversion_sd", Float),
                   Column("activity", Float), Column("activity_sd", Float),
                   Column("target_conversion", Float), Column("predicted_end_s", Float),
@@ -149,7 +163,8 @@ class Store:
                         conn.execute(insert(batches).values(**b))
                 for e in estimate_rows:
                     exists = conn.execute(select(estimates.c.id).where(
-                        (estimates.c.batch == e["batch"]) & (estimates.c.at_s == e["at_s"]))).first()
+                        (estimates.c.batch == e["batch"])
+                        & (estimates.c.at_s == e["at_s"]))).first()
                     if not exists:
                         conn.execute(insert(estimates).values(**e))
                         added["estimates"] += 1
