@@ -25,7 +25,7 @@ from pathlib import Path
 import numpy as np
 
 from . import scenario as sc
-from .schedule import Batch, Schedule, plan_schedule
+from .schedule import Batch, ScenarioError, Schedule, plan_schedule
 
 DEFAULT_SEED = 20261005
 DEFAULT_OUT = Path(__file__).resolve().parent / "plant.db"
@@ -77,8 +77,12 @@ class _Clock:
 
 # ------------------------------------------------------------------------------ faults
 def _nearest_batch(batches: list[Batch], unit: str, t_s: float) -> Batch:
-    done = [b for b in batches if b.unit.name == unit and b.end_s is not None]
-    return min(done, key=lambda b: abs(b.start_s - t_s))
+    """The complete batch on ``unit`` that started nearest ``t_s`` (any unit if it has none)."""
+    done = [b for b in batches if b.end_s is not None]
+    on_unit = [b for b in done if b.unit.name == unit] or done
+    if not on_unit:
+        raise ScenarioError("the history is too short to hold a complete batch")
+    return min(on_unit, key=lambda b: abs(b.start_s - t_s))
 
 
 def _window_in(batch: Batch, offset_min: float, length_min: float) -> tuple[float, float]:
@@ -95,17 +99,16 @@ def _plan_faults(rng: np.random.Generator, schedule: Schedule, history_s: float)
     outage_batch = _nearest_batch(b, "R-101", 0.30 * history_s)
     gap_batch = _nearest_batch(b, "R-102", 0.55 * history_s)
     unc_batch = _nearest_batch(b, "R-103", 0.40 * history_s)
-    all_tt = [u.temperature_tag for u in sc.UNITS]
     return {
         "gaps": [
             {
                 "kind": "collector outage: no rows for any temperature tag",
-                "tags": all_tt,
+                "tags": [u.temperature_tag for u in sc.UNITS],
                 "window": _window_in(outage_batch, 180.0, 12.0),
             },
             {
                 "kind": "one transmitter's rows lost",
-                "tags": ["R102.TT"],
+                "tags": [gap_batch.unit.temperature_tag],
                 "window": _window_in(
                     gap_batch, 150.0 + rng.uniform(0.0, 30.0), float(rng.integers(15, 29))
                 ),
@@ -114,7 +117,7 @@ def _plan_faults(rng: np.random.Generator, schedule: Schedule, history_s: float)
         "uncertain_windows": [
             {
                 "kind": "transmitter under check: uncertain quality, extra noise",
-                "tags": ["R103.TT"],
+                "tags": [unc_batch.unit.temperature_tag],
                 "window": _window_in(unc_batch, 90.0, 40.0),
             }
         ],

@@ -73,22 +73,11 @@ def _uniform(rng: np.random.Generator, bounds) -> float:
 
 
 class _Planner:
-    def __init__(
-        self,
-        rng: np.random.Generator,
-        t0: datetime,
-        export_end_s: float,
-        outlier_after_s: float,
-        spoilt_after_s: float,
-    ):
+    def __init__(self, rng: np.random.Generator, t0: datetime, export_end_s: float):
         self.rng = rng
         self.t0 = t0
         self.export_end_s = export_end_s
         self.zone = ZoneInfo(sc.SITE_TIMEZONE)
-        self.outlier_after_s = outlier_after_s
-        self.spoilt_after_s = spoilt_after_s
-        self.outlier_done = False
-        self.spoilt_done = False
 
     def next_charge(self, earliest_s: float) -> float:
         """The first charge time at or after ``earliest_s`` that the shift pattern allows."""
@@ -107,16 +96,7 @@ class _Planner:
             day += timedelta(days=1)
         raise ScenarioError("no charge window found within 60 days")
 
-    def assays(
-        self,
-        recipe: sc.Recipe,
-        c_a0: float,
-        kin: BatchKinetics,
-        start_s: float,
-        *,
-        plant_outlier: bool,
-        plant_spoilt: bool,
-    ):
+    def assays(self, recipe: sc.Recipe, c_a0: float, kin: BatchKinetics, start_s: float):
         """Lab samples until the operators see a passing result; returns (assays, trigger)."""
         rng = self.rng
         t = start_s + 60.0 * round(_uniform(rng, sc.FIRST_ASSAY_MIN))
@@ -130,37 +110,23 @@ class _Planner:
         x = kin.x_at(s)
         c_a = c_a0 * (1.0 - x)
         noise = rng.normal(0.0, recipe.assay_sd, size=len(s))
-        notes = [""] * len(s)
-        if plant_outlier:  # a gross lab error that reads as less converted
-            sign = 1.0 if recipe.assay_kind == "concentration" else -1.0
-            noise[2] = sign * sc.OUTLIER_SIGMA * recipe.assay_sd
-            notes[2] = "outlier"
         if recipe.assay_kind == "concentration":
             value = np.round(np.clip(c_a + noise, 0.0, None), recipe.assay_decimals)
             lab_x = 1.0 - value / c_a0  # the operators use the recorded charge
         else:
             value = np.round(np.clip(x + noise, 0.0, 1.0), recipe.assay_decimals)
             lab_x = value.copy()
-        quality = np.full(len(s), sc.OPC_GOOD, dtype=np.int64)
-        if plant_spoilt:  # the sample was spoilt: a row with no value and bad quality
-            value[1] = math.nan
-            quality[1] = sc.OPC_BAD
-            notes[1] = "spoilt"
-            lab_x[1] = -np.inf
         passing = np.flatnonzero(lab_x >= recipe.target_conversion - 1e-12)
         trigger = float(arrival[passing].min()) if len(passing) else None
         keep = s < trigger if trigger is not None else np.ones(len(s), bool)
-        if (plant_outlier and not keep[2]) or (plant_spoilt and not keep[1]):
-            raise ScenarioError("a planted assay fault fell after the end of its batch")
         out = [
             Assay(
                 float(s[i]),
                 float(arrival[i]),
                 float(value[i]),
-                int(quality[i]),
+                sc.OPC_GOOD,
                 float(x[i]),
                 float(c_a[i]),
-                notes[i],
             )
             for i in np.flatnonzero(keep)
         ]
@@ -172,9 +138,7 @@ def plan_schedule(rng: np.random.Generator, t0: datetime, days: float) -> Schedu
     export_end_s = days * 86400.0 + sc.EXPORT_END_OFFSET_S
     history_s = export_end_s
     drift_onset_s = export_end_s - min(sc.DRIFT_SPAN_DAYS * 86400.0, 0.4 * history_s)
-    planner = _Planner(
-        rng, t0, export_end_s, outlier_after_s=0.25 * history_s, spoilt_after_s=0.6 * history_s
-    )
+    planner = _Planner(rng, t0, export_end_s)
     states = []
     for u in sc.UNITS:
         amb = u.ambient_degc + sc.ZERO_CELSIUS_K
@@ -206,16 +170,51 @@ def plan_schedule(rng: np.random.Generator, t0: datetime, days: float) -> Schedu
         if recipe.name == sc.DRIFT_RECIPE and start_s >= drift_onset_s:
             drift_count += 1
             drift = sc.DRIFT_FACTOR_PER_BATCH**drift_count
-        batch = _run_batch(planner, st, recipe, start_s, drift, f"{len(batches) + 1:04d}", final)
+        batch = _run_batch(planner, st, recipe, start_s, drift, f"{len(batches) + 1:04d}")
         if final:
             if batch.end_s is not None and batch.end_s <= export_end_s:
                 raise ScenarioError(f"{batch.batch_id} was meant to run at the export end")
-            batch.end_s = None
+            batch.end_s = None  # what the operators will do after the export is not history
+            batch.trigger_arrival_s = None
             st.done = True
         elif batch.end_s > export_end_s:
             raise ScenarioError(f"{batch.batch_id} ends after the export end")
         batches.append(batch)
+    _plant_lab_faults(batches, history_s)
     return Schedule(batches, {st.unit.name: st.trace for st in states}, drift_onset_s)
+
+
+def _plant_lab_faults(batches: list[Batch], history_s: float) -> None:
+    """One gross lab error and one spoilt sample, each in a complete batch.
+
+    Both hit early samples (the 3rd and the 2nd), far from the target, so they
+    never change when the operators discharged; that is checked, not assumed.
+    """
+
+    def pick(kind: str, fraction: float, index: int) -> Batch | None:
+        found = [
+            b
+            for b in batches
+            if b.end_s is not None and b.recipe.assay_kind == kind and len(b.assays) > index
+        ]
+        return min(found, key=lambda b: abs(b.start_s - fraction * history_s), default=None)
+
+    b = pick("concentration", 0.45, 2)
+    if b is not None:  # reads as less converted: A far too high
+        a = b.assays[2]
+        wrong = a.true_c_a + sc.OUTLIER_SIGMA * b.recipe.assay_sd
+        a.value, a.note = round(wrong, b.recipe.assay_decimals), "outlier"
+        _check_not_trigger(b, a)
+    b = pick("conversion", 0.6, 1)
+    if b is not None:  # the sample was spoilt: a row with no value and bad quality
+        a = b.assays[1]
+        a.value, a.quality, a.note = math.nan, sc.OPC_BAD, "spoilt"
+        _check_not_trigger(b, a)
+
+
+def _check_not_trigger(b: Batch, a: Assay) -> None:
+    if a.arrival_s == b.trigger_arrival_s:
+        raise ScenarioError(f"a planted lab fault in {b.batch_id} would move its end")
 
 
 def _propose(planner: _Planner, st: _UnitState, export_end_s: float):
@@ -240,7 +239,6 @@ def _run_batch(
     start_s: float,
     drift: float,
     number: str,
-    final: bool,
 ) -> Batch:
     rng, u = planner.rng, st.unit
     rel = float(np.clip(rng.normal(0.0, recipe.c_a0_rel_sd), -sc.C_A0_REL_CLIP, sc.C_A0_REL_CLIP))
@@ -253,29 +251,12 @@ def _run_batch(
         trace.switch(*sw)
     horizon = start_s + sc.SIM_HORIZON_S
     kin = integrate_batch(recipe, c_a0, activity, trace, start_s, horizon)
-    # planted faults go into completed batches only
-    plant_outlier = (
-        not final
-        and recipe.assay_kind == "concentration"
-        and not planner.outlier_done
-        and start_s >= planner.outlier_after_s
-    )
-    plant_spoilt = (
-        not final
-        and recipe.assay_kind == "conversion"
-        and not planner.spoilt_done
-        and start_s >= planner.spoilt_after_s
-    )
-    assays, trigger = planner.assays(
-        recipe, c_a0, kin, start_s, plant_outlier=plant_outlier, plant_spoilt=plant_spoilt
-    )
+    assays, trigger = planner.assays(recipe, c_a0, kin, start_s)
     if trigger is None:
         raise ScenarioError(f"batch {number} on {u.name} never showed a passing assay")
     end_s = float(round(trigger + 60.0 * _uniform(rng, sc.DISCHARGE_DELAY_MIN)))
     if end_s - start_s > sc.MAX_BATCH_S:
         raise ScenarioError(f"batch {number} on {u.name} took longer than MAX_BATCH_S")
-    planner.outlier_done |= plant_outlier
-    planner.spoilt_done |= plant_spoilt
     for sw in switches:
         if sw[0] < end_s:
             st.trace.switch(*sw)
