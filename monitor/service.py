@@ -267,6 +267,7 @@ def run_service(cfg: Config, *, once: bool = False) -> int:
             print(f"cycle done: {rep.rows_read} rows read, {rep.running} running batches, "
                   f"{rep.estimates_added} estimates and {rep.alerts_added} alerts added")
             return 0
+        from apscheduler.events import EVENT_JOB_MAX_INSTANCES, EVENT_JOB_MISSED
         from apscheduler.schedulers.blocking import BlockingScheduler
 
         sched = BlockingScheduler(timezone="UTC")
@@ -275,6 +276,7 @@ def run_service(cfg: Config, *, once: bool = False) -> int:
                       misfire_grace_time=int(cfg.poll.misfire_grace_s), id="poll",
                       next_run_time=None)
         sched.modify_job("poll", next_run_time=_utcnow())
+        sched.add_listener(_log_skipped, EVENT_JOB_MISSED | EVENT_JOB_MAX_INSTANCES)
 
         def stop(signum, _frame):
             log.warning("signal %s: stopping after the current cycle", signum)
@@ -284,6 +286,15 @@ def run_service(cfg: Config, *, once: bool = False) -> int:
         signal.signal(signal.SIGINT, stop)
         sched.start()
     return 0
+
+
+def _log_skipped(event) -> None:
+    """A cycle the scheduler did not run (still busy, or missed beyond the grace time)."""
+    from apscheduler.events import EVENT_JOB_MAX_INSTANCES
+
+    log.warning("poll cycle skipped (%s) at %s", "previous cycle still running"
+                if event.code == EVENT_JOB_MAX_INSTANCES else "missed its grace time",
+                event.scheduled_run_time)
 
 
 def _utcnow():

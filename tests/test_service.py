@@ -1,0 +1,80 @@
+"""`convmon run` as a process: scheduler, heartbeat, clean SIGTERM, one instance per store."""
+
+from __future__ import annotations
+
+import json
+import os
+import signal
+import subprocess
+import sys
+import time
+
+from monitor.store.db import MIGRATIONS, Store, applied_migrations, migrate
+
+
+def _config(sample_plant, tmp_path) -> str:
+    text = sample_plant.config_path.read_text().replace(
+        str(sample_plant.config_path.parent / "convmon.db"), str(tmp_path / "store.db"))
+    assert "interval_s = 30" in text
+    p = tmp_path / "c.toml"
+    p.write_text(text.replace("interval_s = 30", "interval_s = 1"))
+    return str(p)
+
+
+def test_run_polls_on_schedule_and_stops_on_sigterm(sample_plant, tmp_path):
+    cfg = _config(sample_plant, tmp_path)
+    env = {**os.environ, "CONVMON_LOCK_DIR": str(tmp_path)}
+    proc = subprocess.Popen([sys.executable, "-m", "monitor", "run", "--config", cfg],
+                            stderr=subprocess.PIPE, text=True, env=env)
+    try:
+        deadline = time.time() + 60
+        beat = None
+        while time.time() < deadline:
+            time.sleep(1.0)
+            r = subprocess.run([sys.executable, "-m", "monitor", "status", "--json",
+                                "--config", cfg], capture_output=True, text=True, env=env)
+            if r.returncode == 0:
+                beat = json.loads(r.stdout)["heartbeat"]
+                if beat["cycles"] >= 2:
+                    break
+        assert beat and beat["cycles"] >= 2 and beat["last_good_cycle"]
+        second = subprocess.run([sys.executable, "-m", "monitor", "run", "--once",
+                                 "--config", cfg], capture_output=True, text=True, env=env)
+        assert second.returncode == 3 and "already" in second.stderr
+        proc.send_signal(signal.SIGTERM)
+        assert proc.wait(timeout=30) == 0
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+    doc = json.loads(subprocess.run([sys.executable, "-m", "monitor", "status", "--json",
+                                     "--config", cfg], capture_output=True, text=True,
+                                    env=env).stdout)
+    running = {b["batch"] for b in sample_plant.truth["batches"] if b["state"] == "running"}
+    assert {r["batch"] for r in doc["status"]} == running
+    for r in doc["status"]:
+        assert isinstance(r["alerts"], list)
+
+
+def test_store_migrations_upgrade_and_refuse_newer(tmp_path):
+    from sqlalchemy import create_engine, insert
+
+    from monitor.errors import StoreError
+    from monitor.store.db import migrations_table
+
+    url = f"sqlite:///{tmp_path / 's.db'}"
+    engine = create_engine(url)
+    # an older store: only the first migration applied
+    with engine.begin() as conn:
+        migrations_table.create(conn)
+        MIGRATIONS[0][1](conn)
+        conn.execute(insert(migrations_table).values(name=MIGRATIONS[0][0], applied_at="x"))
+    assert migrate(engine) == [name for name, _ in MIGRATIONS[1:]]
+    assert applied_migrations(engine) == [name for name, _ in MIGRATIONS]
+    with engine.begin() as conn:
+        conn.execute(insert(migrations_table).values(name="9999_from_the_future", applied_at="x"))
+    try:
+        Store(url)
+    except StoreError as exc:
+        assert "newer convmon" in str(exc) and exc.exit_code == 3
+    else:
+        raise AssertionError("a newer store was opened")
