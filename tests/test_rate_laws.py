@@ -76,8 +76,9 @@ def test_separated_form_matches_the_integral_form_of_the_mole_balance(n):
     # t = C_A0 int_0^X dX / (-r_A) with -r_A = k C_A^n, C_A = C_A0 (1-X): the design
     # equation of the constant-volume batch, integrated by scipy quad.
     k, c_a0, X = 4e-4, 1.8, 0.93
-    t_quad, _ = quad(lambda x: c_a0 / (k * (c_a0 * (1 - x)) ** n), 0.0, X, epsabs=0,
-                     epsrel=1e-13, limit=200)
+    t_quad, _ = quad(
+        lambda x: c_a0 / (k * (c_a0 * (1 - x)) ** n), 0.0, X, epsabs=0, epsrel=1e-13, limit=200
+    )
     assert_allclose(batch_time_s(PowerLaw(order=n), X, k, c_a0), t_quad, rtol=1e-11)
 
 
@@ -105,8 +106,7 @@ def test_levenspiel_example_3_1_order_1_4():
     assert round(t) == 180  # the book's rounded figure
     assert round(t, 1) == 179.9  # the integral form to the printed decimal
     # and the design equation t = C_A0 int_0^X dX/(-r_A), scipy quad
-    t_quad, _ = quad(lambda x: c_a0 / (k * (c_a0 * (1.0 - x)) ** n), 0.0, X, epsabs=0,
-                     epsrel=1e-13)
+    t_quad, _ = quad(lambda x: c_a0 / (k * (c_a0 * (1.0 - x)) ** n), 0.0, X, epsabs=0, epsrel=1e-13)
     assert_allclose(t, t_quad, rtol=1e-12)
 
 
@@ -214,20 +214,25 @@ def test_second_order_with_epsilon_against_quad(eps, X):
     # Levenspiel 1999, ch. 3, from memory), by scipy quad and by its antiderivative
     # (1 + eps) X/(1 - X) + eps ln(1 - X) (worked by hand).
     G = PowerLaw(order=2.0, epsilon=eps).G(X)
-    ref, _ = quad(lambda x: (1 + eps * x) / (1 - x) ** 2, 0.0, X, epsabs=0, epsrel=1e-13,
-                  limit=200)
+    ref, _ = quad(lambda x: (1 + eps * x) / (1 - x) ** 2, 0.0, X, epsabs=0, epsrel=1e-13, limit=200)
     assert_allclose(G, ref, rtol=1e-10)
     assert_allclose(G, (1 + eps) * X / (1 - X) + eps * math.log1p(-X), rtol=1e-10)
 
 
-@pytest.mark.parametrize("law,integrand", [
-    (BimolecularLaw(theta_b=1.6, b=2.0, epsilon=0.4),
-     lambda x: (1 + 0.4 * x) / ((1 - x) * (1.6 - 2.0 * x))),
-    (AutocatalyticLaw(theta_r=0.05, epsilon=-0.3),
-     lambda x: (1 - 0.3 * x) / ((1 - x) * (0.05 + x))),
-    (PowerLaw(order=1.5, epsilon=1.0),
-     lambda x: (1 + x) ** 0.5 / (1 - x) ** 1.5),
-])
+@pytest.mark.parametrize(
+    "law,integrand",
+    [
+        (
+            BimolecularLaw(theta_b=1.6, b=2.0, epsilon=0.4),
+            lambda x: (1 + 0.4 * x) / ((1 - x) * (1.6 - 2.0 * x)),
+        ),
+        (
+            AutocatalyticLaw(theta_r=0.05, epsilon=-0.3),
+            lambda x: (1 - 0.3 * x) / ((1 - x) * (0.05 + x)),
+        ),
+        (PowerLaw(order=1.5, epsilon=1.0), lambda x: (1 + x) ** 0.5 / (1 - x) ** 1.5),
+    ],
+)
 def test_variable_volume_G_against_quad(law, integrand):
     # G = int_0^X dX/h with h from the rate written in C_A = C_A0 (1-X)/(1+eps X) etc.;
     # the integrand is written out here independently of the code's h.
@@ -246,7 +251,8 @@ def test_autocatalytic_with_epsilon_against_partial_fractions(theta_r, eps):
     # table once lost 5e-4 relative there at theta_r = 1e-3.
     X = np.concatenate([np.geomspace(1e-9, 0.3, 40), np.linspace(0.3, 0.999999, 40)])
     exact = (-(1 + eps) * np.log1p(-X) + (1 - eps * theta_r) * np.log1p(X / theta_r)) / (
-        1 + theta_r)
+        1 + theta_r
+    )
     law = AutocatalyticLaw(theta_r=theta_r, epsilon=eps)
     assert_allclose(law.G(X), exact, rtol=1e-9)
     assert_allclose(law.G_inv(exact), X, rtol=1e-9)
