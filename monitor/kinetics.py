@@ -12,6 +12,7 @@ import hashlib
 import math
 import tomllib
 from dataclasses import asdict, dataclass, field
+from functools import cached_property
 from pathlib import Path
 
 import numpy as np
@@ -49,8 +50,9 @@ class Kinetics:
     source: str = field(default="", compare=False)
     digest: str = field(default="", compare=False)
 
-    @property
+    @cached_property
     def law(self):
+        """The rate-law object (built once; the dataclass is frozen)."""
         return make_law(self.rate_law, order=self.order, theta_b=self.theta_b, b=self.b,
                         theta_r=self.theta_r, k_eq_ref=self.k_eq_ref,
                         dh_rxn_j_per_mol=self.dh_rxn_j_per_mol, epsilon=self.epsilon)

@@ -73,6 +73,10 @@ class BatchState:
     def add_temperature(self, t_s, T_K) -> None:
         """Add temperature samples [s], [K] (samples before the start are ignored)."""
         t_s = np.asarray(t_s, dtype=float)
+        if (len(self.trace) and 0 < len(t_s) <= 32 and self.kinetics.law.separable
+                and (self.end_s is None or t_s[-1] <= self.end_s)
+                and self.trace._append_few(t_s.tolist(), np.asarray(T_K, float).tolist())):
+            return  # the usual poll: samples after the last, inside the window
         keep = t_s >= self.start_s
         if self.end_s is not None:
             keep &= t_s <= self.end_s
@@ -130,6 +134,15 @@ class BatchState:
         """``k_ref * s(C_A0)``: multiplies ``alpha * Theta`` to give ``G(X)`` [-/s]."""
         kin = self.kinetics
         return kin.k_ref * kin.law.scale(self.c_a0)
+
+    def conversion_now(self, alpha: float = 1.0) -> float:
+        """Model conversion at the last temperature sample for activity ``alpha`` [-]."""
+        tr = self.trace
+        theta = float(tr.theta[len(tr) - 1]) if len(tr) else 0.0
+        law = self.kinetics.law
+        if law.separable:
+            return float(law.G_inv(float(alpha) * self.rate_scale() * theta))
+        return float(self._reversible_at([tr.last_t_s], alpha)[0, 0])
 
     def conversion_at(self, t_s, alpha: float | np.ndarray = 1.0):
         """Model conversion at times for activity ``alpha`` (arrays broadcast) [-]."""

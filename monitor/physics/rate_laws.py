@@ -27,6 +27,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import math
+
 import numpy as np
 from scipy.special import exprel
 
@@ -135,6 +137,12 @@ def power_G(X, order):
 
 def power_G_inv(y, order):
     """Inverse of `power_G`; orders below 1 reach X = 1 at ``G = 1/(1-n)`` [-]."""
+    if isinstance(y, float) and isinstance(order, float):  # the per-poll scalar case
+        v = (order - 1.0) * y
+        if v <= -1.0:
+            return 1.0
+        rel = math.log1p(v) / v if abs(v) >= 1e-8 else 1.0 - v / 2.0 + v * v / 3.0
+        return -math.expm1(-y * rel)
     y = np.asarray(y, dtype=float)
     v = (np.asarray(order, dtype=float) - 1.0) * y
     done = v <= -1.0

@@ -22,6 +22,7 @@ without re-integrating: this is what lets a Monte Carlo forecast draw Ea.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -33,6 +34,8 @@ MAX_EXPONENT_STEP = 0.05
 #: Largest exponent change over one step of the reversible law (`refine_trace`) [-].
 REVERSIBLE_EXPONENT_STEP = 0.0025
 _GL_X, _GL_W = np.polynomial.legendre.leggauss(4)
+_GL_PAIRS = tuple(zip(_GL_X.tolist(), _GL_W.tolist(), strict=True))
+_FEW = 32  # appends up to this many samples take the scalar path
 
 
 def _cells(t0, t1, T0, T1, ea, t_ref_k):
@@ -162,6 +165,8 @@ class ThetaTrace:
         n = self._n
         if not len(t_new):
             return max(n - 1, 0)
+        if n and len(t_new) <= _FEW and self._append_few(t_new.tolist(), T_new.tolist()):
+            return n - 1
         if n and t_new.min() <= self.t_s[n - 1] or np.any(np.diff(t_new) <= 0):
             return self._merge(t_new, T_new)
         self._grow(n + len(t_new))
@@ -170,6 +175,47 @@ class ThetaTrace:
         self._n = n + len(t_new)
         self._integrate_from(max(n - 1, 0))
         return max(n - 1, 0)
+
+    def _append_few(self, tl: list, Tl: list) -> bool:
+        """The usual poll, a few samples after the last: the same quadrature in scalars.
+
+        Returns False (having changed nothing) when the samples are not strictly after
+        the last one or an interval would need subdividing; the array path takes over.
+        """
+        n = self._n
+        t0, T0 = float(self.t_s[n - 1]), float(self.T_K[n - 1])
+        th, a1, a2 = float(self.theta[n - 1]), float(self.s1[n - 1]), float(self.s2[n - 1])
+        ea, beta, inv_ref = self.ea_j_per_mol, self.ea_j_per_mol / R_J_PER_MOL_K, 1.0 / self.t_ref_k
+        rows, gaps = [], []
+        for t1, T1 in zip(tl, Tl, strict=True):
+            if not t1 > t0 or beta * abs(1.0 / T0 - 1.0 / T1) > MAX_EXPONENT_STEP:
+                return False
+            half, mid, hd = (t1 - t0) / 2.0, (T0 + T1) / 2.0, (T1 - T0) / 2.0
+            f0 = f1 = f2 = 0.0
+            for x, w in _GL_PAIRS:
+                g = -(1.0 / (mid + hd * x) - inv_ref) / R_J_PER_MOL_K
+                fw = w * math.exp(ea * g)
+                f0 += fw
+                f1 += fw * g
+                f2 += fw * g * g
+            th += half * f0
+            a1 += half * f1
+            a2 += half * f2
+            if t1 - t0 > self.max_gap_s:
+                gaps.append(Gap(t0, t1, half * f0, mid))
+            rows.append((t1, T1, th, a1, a2))
+            t0, T0 = t1, T1
+        m = len(rows)
+        self._grow(n + m)
+        cols = list(zip(*rows, strict=True))
+        self.t_s[n:n + m] = cols[0]
+        self.T_K[n:n + m] = cols[1]
+        self.theta[n:n + m] = cols[2]
+        self.s1[n:n + m] = cols[3]
+        self.s2[n:n + m] = cols[4]
+        self._n = n + m
+        self.gaps.extend(gaps)
+        return True
 
     def _merge(self, t_new, T_new) -> int:
         n = self._n

@@ -88,7 +88,7 @@ def bench_incremental(n_baseline_polls: int | None = None, repeats: int = 5):
         t0 = time.perf_counter()
         for j, sl in enumerate(polls):
             state.add_temperature(t[sl], T[sl])
-            X_ours[j] = state.conversion_at(t[sl][-1], alpha)
+            X_ours[j] = state.conversion_now(alpha)
         totals.append(time.perf_counter() - t0)
     ours_total = statistics.median(totals)
     # the same polls on a fresh batch, timing the two halves apart
@@ -98,7 +98,7 @@ def bench_incremental(n_baseline_polls: int | None = None, repeats: int = 5):
         a = time.perf_counter()
         split.add_temperature(t[sl], T[sl])
         b = time.perf_counter()
-        split.conversion_at(t[sl][-1], alpha)
+        split.conversion_now(alpha)
         t_read += time.perf_counter() - b
         t_add += b - a
     # the naive approach: every poll (or an even subset, scaled, when asked)
@@ -137,7 +137,7 @@ def bench_many_batches(n_batches=100):
         tt, TT = t[sl], T[sl]
         for s in states:
             s.add_temperature(tt, TT)
-            s.conversion_at(tt[-1], 1.0)
+            s.conversion_now(1.0)
     total = time.perf_counter() - t0
     return total / (len(polls) * n_batches)
 
@@ -151,7 +151,7 @@ def profile_poll(n=400):
     prof.enable()
     for sl in polls:
         state.add_temperature(t[sl], T[sl])
-        state.conversion_at(t[sl][-1], 1.0)
+        state.conversion_now(1.0)
     prof.disable()
     stats = pstats.Stats(prof, stream=io.StringIO()).stats
     total = sum(v[2] for v in stats.values())
