@@ -8,8 +8,17 @@ Idempotent on (tag, ts): writing the same estimate twice changes nothing.
 
 from __future__ import annotations
 
-from sqlalchemy import BigInteger, Column, Float, MetaData, PrimaryKeyConstraint, String, Table
-from sqlalchemy import create_engine, inspect
+from sqlalchemy import (
+    BigInteger,
+    Column,
+    Float,
+    MetaData,
+    PrimaryKeyConstraint,
+    String,
+    Table,
+    create_engine,
+    inspect,
+)
 from sqlalchemy.dialects.mysql import insert as mysql_insert
 from sqlalchemy.dialects.postgresql import insert as pg_insert
 from sqlalchemy.dialects.sqlite import insert as sqlite_insert

@@ -25,9 +25,8 @@ Concentrations are in mol/L, times in s, ``k_ref`` in s^-1 (L/mol)^(order-1).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import math
+from dataclasses import dataclass
 
 import numpy as np
 from scipy.special import exprel
