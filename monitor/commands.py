@@ -118,3 +118,103 @@ def cmd_demo(args) -> int:
     print(f"demo done in {summary['wall_s']:.0f} s: {summary['batches']} batches monitored, "
           f"{summary['estimates']} estimates, {summary['alerts']} alerts stored")
     return 0
+
+
+class _FitProgress:
+    """Progress bars on stderr (only on a terminal): batches loaded, optimiser iterations."""
+
+    def __init__(self):
+        from rich.console import Console
+        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn
+
+        self.bar = Progress(TextColumn("{task.description}"), BarColumn(),
+                            MofNCompleteColumn(), console=Console(stderr=True), transient=True)
+        self._load = self._iter = None
+
+    def __enter__(self):
+        self.bar.start()
+        return self
+
+    def __exit__(self, *exc):
+        self.bar.stop()
+
+    def loading(self, done: int, total: int, name: str) -> None:
+        if self._load is None:
+            self._load = self.bar.add_task("loading batches", total=total)
+        self.bar.update(self._load, completed=done, description=f"loading {name}")
+
+    def stage(self, text: str) -> None:
+        if self._iter is None:
+            self._iter = self.bar.add_task(text, total=None)
+        self.bar.update(self._iter, description=text)
+
+    def iteration(self, n: int) -> None:
+        if self._iter is None:
+            self.stage("optimiser iterations")
+        self.bar.update(self._iter, completed=n)
+
+
+def _fit_text(doc: dict) -> str:
+    def pm(v, se, fmt="{:.4g}"):
+        return fmt.format(v) + ("" if se is None else " ± " + fmt.format(se))
+
+    se = doc["stderr"]
+    law = doc["rate_law"] + (f", order {pm(doc['order'], se['order'], '{:.3f}')}"
+                             if doc["rate_law"] == "power" else "")
+    if doc["ea_j_per_mol"] is None and doc.get("prior_kinetics"):
+        ea = (f"not identifiable from these data (the file keeps the prior "
+              f"{doc['ea_j_per_mol_written'] / 1e3:.1f} kJ/mol)")
+    elif doc["ea_j_per_mol"] is None:
+        ea = "not identifiable from these data (no prior: k_ref applies at T_ref only)"
+    else:
+        ea = pm(doc["ea_j_per_mol"] / 1e3, None if se["ea_j_per_mol"] is None
+                else se["ea_j_per_mol"] / 1e3, "{:.2f}") + " kJ/mol"
+    act = "-" if doc["activity_sd"] is None else f"{doc['activity_sd']:.3f}"
+    lines = [f"fitted {law}",
+             f"  k_ref        {pm(doc['k_ref'], se['k_ref'])} at T_ref {doc['t_ref_k']:.2f} K",
+             f"  Ea           {ea}",
+             f"  corr(ln k_ref, Ea) {doc['correlation'][0][1]:+.3f}; activity_sd {act}",
+             f"  data         {doc['n_batches']} series, {doc['n_assays']} assays, "
+             f"RMSE {doc['rmse']:.4g}, AIC {doc['aic']:.1f}",
+             "  candidates   " + "; ".join(
+                 f"{c['label']}: " + ("failed" if c["aic"] is None else
+                                      f"AIC {c['aic']:.1f} (Δ {c['delta_aic']:.1f})")
+                 for c in doc["candidates"])]
+    lines += [f"  warning      {w}" for w in doc["warnings"]]
+    lines.append(f"  wrote        {doc['out']}, {doc['plots']['parity']}, "
+                 f"{doc['plots']['residuals']}")
+    return "\n".join(lines)
+
+
+def cmd_fit(args) -> int:
+    import contextlib
+    from pathlib import Path
+
+    from . import fitjob
+    from .errors import ConfigError
+    from .kinetics import load_kinetics
+
+    progress = _FitProgress() if sys.stderr.isatty() else None
+    with progress or contextlib.nullcontext():
+        if args.lab_csv:
+            prior, prior_path = None, None
+            try:
+                cfg = load_config(args.config)
+            except ConfigError:
+                if args.config:  # an explicit config must load; the default one may be absent
+                    raise
+                cfg = None
+            rc = cfg.recipe(args.recipe) if cfg else None
+            if rc is not None and Path(rc.kinetics).exists():
+                prior, prior_path = load_kinetics(rc.kinetics), rc.kinetics
+            doc = fitjob.fit_lab_csv(args.lab_csv, args.out, prior=prior, prior_path=prior_path,
+                                     law=args.law, order=args.order, force=args.force,
+                                     recipe=args.recipe, progress=progress)
+        else:
+            cfg = load_config(args.config)
+            wanted = [b.strip() for b in args.batches.split(",") if b.strip()] \
+                if args.batches else None
+            doc = fitjob.fit_recipe(cfg, args.recipe, args.out, batches=wanted, law=args.law,
+                                    order=args.order, force=args.force, progress=progress)
+    _out(args, doc, _fit_text(doc))
+    return 0

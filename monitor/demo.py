@@ -107,7 +107,7 @@ def _fit_kinetics(out: Path, cfg_hist, before_s: float, log) -> dict[str, Path]:
         path = out / "kinetics" / f"{recipe.lower()}.toml"
         t0 = time.perf_counter()
         try:
-            res = fitjob.fit_recipe(cfg_hist, recipe, batch_ids=ids, out=path, force=True)
+            res = fitjob.fit_recipe(cfg_hist, recipe, path, batches=ids, force=True)
         except Exception as exc:  # the demo goes on with the shipped kinetics
             log(f"  fit of {recipe} failed ({exc}); using config/kinetics")
             continue
