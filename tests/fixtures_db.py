@@ -47,6 +47,18 @@ MARIADB_URL = os.environ.get("CONVMON_TEST_MARIADB", "mysql+pymysql://root@127.0
 TS_TYPES = ("text", "datetime", "timestamptz", "epoch")
 
 _reachable: dict[str, str | None] = {}  # url -> None (answers) or why not
+_writers: dict[str, Engine] = {}  # url -> the engine that writes exports there (one per run)
+
+
+def _writer(url: str) -> Engine:
+    if url not in _writers:
+        _writers[url] = create_engine(url)
+    return _writers[url]
+
+
+def pytest_sessionfinish(session, exitstatus):
+    for engine in _writers.values():
+        engine.dispose()
 
 
 def _probe(url: str) -> str | None:
@@ -113,23 +125,39 @@ class Schema:
 
     def without(self, *roles: str) -> Schema:
         """The same layout without the samples columns ``roles`` (e.g. ``"seq"``)."""
-        return replace(self, samples_columns={r: (None if r in roles else c)
-                                              for r, c in self.samples_columns.items()})
+        return replace(
+            self,
+            samples_columns={
+                r: (None if r in roles else c) for r, c in self.samples_columns.items()
+            },
+        )
 
 
 DEFAULT_SCHEMA = Schema(
     "tag_samples",
     {"seq": "seq", "tag": "tag", "time": "ts", "value": "value", "quality": "quality"},
     "batch_events",
-    {"seq": "seq", "batch": "batch_id", "unit": "unit", "recipe": "recipe", "event": "event",
-     "time": "ts"},
+    {
+        "seq": "seq",
+        "batch": "batch_id",
+        "unit": "unit",
+        "recipe": "recipe",
+        "event": "event",
+        "time": "ts",
+    },
 )
 CUSTOM_SCHEMA = Schema(
     "plant_readings",
     {"seq": "entry_no", "tag": "signal", "time": "stamp", "value": "val", "quality": "qual"},
     "batch_log",
-    {"seq": None, "batch": "lot", "unit": "vessel", "recipe": "product", "event": "step",
-     "time": "logged"},
+    {
+        "seq": None,
+        "batch": "lot",
+        "unit": "vessel",
+        "recipe": "product",
+        "event": "step",
+        "time": "logged",
+    },
     quality_type="str",
 )
 SAMPLE_ROLES = ("seq", "tag", "time", "value", "quality")
@@ -222,8 +250,9 @@ class Export:
         return h
 
     def config(self, units: list[dict], **historian_overrides) -> Config:
-        return config_from_dict({"historian": self.historian(**historian_overrides),
-                                 "units": units})
+        return config_from_dict(
+            {"historian": self.historian(**historian_overrides), "units": units}
+        )
 
     def reader(self, units: list[dict], **historian_overrides) -> HistorianReader:
         """A `HistorianReader` on this export (closed by `drop`)."""
@@ -240,44 +269,58 @@ class Export:
             if self.backend == "postgresql":
                 conn.execute(text("SET LOCAL lock_timeout = '10s'"))
             self.samples.metadata.drop_all(conn, checkfirst=True)
-        self.engine.dispose()
+        if self.backend == "sqlite":  # a file of this test only
+            _writers.pop(self.url, None)
+            self.engine.dispose()
         self.dropped = True
 
 
-def make_export(url: str, samples_rows=(), events_rows=(), *, schema: str | Schema = "default",
-                ts_type: str = "text") -> Export:
+def make_export(
+    url: str,
+    samples_rows=(),
+    events_rows=(),
+    *,
+    schema: str | Schema = "default",
+    ts_type: str = "text",
+) -> Export:
     """Create uniquely named samples and events tables at ``url`` and insert the rows.
 
     ``samples_rows`` are (seq, tag, time, value, quality) and ``events_rows``
     (seq, batch, unit, recipe, event, time) in the role order, whatever the
     layout's column names; the time values must suit ``ts_type`` (see `ts_value`).
     """
-    base = {"default": DEFAULT_SCHEMA, "custom": CUSTOM_SCHEMA}.get(schema, schema)
+    base = (
+        {"default": DEFAULT_SCHEMA, "custom": CUSTOM_SCHEMA}.get(schema)
+        if isinstance(schema, str)
+        else schema
+    )
     if not isinstance(base, Schema):
         raise ValueError(f"schema must be 'default', 'custom' or a Schema, got {schema!r}")
     suffix = uuid.uuid4().hex[:12]
     names = replace(base, samples=f"{base.samples}_{suffix}", events=f"{base.events}_{suffix}")
-    engine = create_engine(url)
+    engine = _writer(url)
     backend = engine.dialect.name
     time_type = _time_type(ts_type, backend)
     sc, ec = names.samples_columns, names.events_columns
     md = MetaData()
     quality_type = BigInteger() if names.quality_type == "int" else String(16)
-    cols = [Column(sc["seq"], BigInteger, primary_key=True, autoincrement=False)
-            if sc["seq"] else None,
-            Column(sc["tag"], String(100), nullable=False),
-            Column(sc["time"], time_type, nullable=False),
-            Column(sc["value"], Double),
-            Column(sc["quality"], quality_type) if sc["quality"] else None]
+    cols = [
+        Column(sc["seq"], BigInteger, primary_key=True, autoincrement=False) if sc["seq"] else None,
+        Column(sc["tag"], String(100), nullable=False),
+        Column(sc["time"], time_type, nullable=False),
+        Column(sc["value"], Double),
+        Column(sc["quality"], quality_type) if sc["quality"] else None,
+    ]
     samples = Table(names.samples, md, *[c for c in cols if c is not None])
     Index(f"ix_{names.samples}_tag_time", samples.c[sc["tag"]], samples.c[sc["time"]])
-    ecols = [Column(ec["seq"], Integer, primary_key=True, autoincrement=False)
-             if ec["seq"] else None,
-             Column(ec["batch"], String(40), nullable=False),
-             Column(ec["unit"], String(40), nullable=False),
-             Column(ec["recipe"], String(40), nullable=False),
-             Column(ec["event"], String(20), nullable=False),
-             Column(ec["time"], time_type, nullable=False)]
+    ecols = [
+        Column(ec["seq"], Integer, primary_key=True, autoincrement=False) if ec["seq"] else None,
+        Column(ec["batch"], String(40), nullable=False),
+        Column(ec["unit"], String(40), nullable=False),
+        Column(ec["recipe"], String(40), nullable=False),
+        Column(ec["event"], String(20), nullable=False),
+        Column(ec["time"], time_type, nullable=False),
+    ]
     events = Table(names.events, md, *[c for c in ecols if c is not None])
     md.create_all(engine)
     export = Export(url, names, ts_type, engine, samples, events)

@@ -6,12 +6,16 @@ Excluded samples are counted per tag and reason (`QualitySummary`), never used.
 
 from __future__ import annotations
 
+import gc
 import math
 import sys
 from collections import defaultdict
+from contextlib import contextmanager
+from decimal import Decimal
 
 import numpy as np
-from sqlalchemy import and_, select
+import pandas as pd
+from sqlalchemy import and_, func, select
 
 from ..config import Config
 from ..errors import BatchNotFoundError, DataQualityError
@@ -19,7 +23,7 @@ from ..units import to_kelvin
 from .engine import make_engine, with_retry
 from .model import Batch, BatchData, BatchProblem, PollResult, QualitySummary, TagSamples
 from .schema import map_schema
-from .timestamps import format_bound, to_epoch_seconds
+from .timestamps import AMBIGUOUS, format_bound, to_epoch_seconds
 
 DAY_S = 86_400.0
 
@@ -41,7 +45,7 @@ class HistorianReader:
             if u.charge_tag:
                 self._units_by_tag[u.charge_tag] = ("charge", u)
         self._good = set(h.good_quality) | {str(q) for q in h.good_quality}
-        self._time_style = self._retry(self._detect_time_style, "samples")
+        self._detected_style = self._retry(self._detect_time_style, "samples")
 
     # ------------------------------------------------------------ plumbing
     def _retry(self, fn, what):
@@ -54,34 +58,70 @@ class HistorianReader:
 
         return self._retry(run, "query")
 
-    def _stream(self, stmt, progress_label: str | None = None):
-        """Rows in chunks of ``fetch_rows`` (server-side cursor where the driver has one)."""
+    def _stream(self, stmt, progress_label: str | None = None, *,
+                context_below_seq: int | None = None):
+        """Rows in chunks of ``fetch_rows`` (server-side cursor where the driver has one).
+
+        ``context_below_seq``: rows up to this seq were read earlier (a poll); rows of a
+        repeated hour among them are read again to resolve this read's (see
+        `_resolve_repeated_hour`).
+        """
 
         def run():
-            chunks = []
-            with self.engine.connect() as conn:
+            chunks, pending = [], []
+            with self.engine.connect() as conn, _cyclic_gc_paused():
                 result = conn.execution_options(stream_results=True,
                                                 yield_per=self.h.fetch_rows).execute(stmt)
                 for part in result.partitions(self.h.fetch_rows):
-                    chunks.append(self._normalise_chunk(part))
+                    chunks.append(self._normalise_chunk(part, pending, len(chunks)))
                     if progress_label and sys.stderr.isatty():
                         n = sum(len(c[0]) for c in chunks)
                         print(f"\r{progress_label}: {n:,} rows", end="", file=sys.stderr)
             if progress_label and sys.stderr.isatty():
                 print(file=sys.stderr)
-            return chunks
+            return chunks, pending
 
-        return self._retry(run, "query")
+        chunks, pending = self._retry(run, "query")
+        if pending:
+            self._resolve_repeated_hour(chunks, pending, context_below_seq)
+        return chunks
 
-    def _detect_time_style(self) -> str:
+    def _resolve_repeated_hour(self, chunks, pending, context_below_seq) -> None:
+        """Times in a repeated (fall-back) hour, resolved by seq over the whole read.
+
+        Resolution needs the rows written before the clock went back, which may sit in
+        another chunk or, for a poll, in rows an earlier poll read.
+        """
+        tags = np.concatenate([chunks[i][0][pos] for i, pos, _ in pending])
+        seq = np.concatenate([chunks[i][4][pos] for i, pos, _ in pending])
+        raw = [v for _, _, values in pending for v in values]
+        if context_below_seq is not None:
+            s, zone = self.samples, self.h.naive_timezone
+            lo = to_epoch_seconds([min(raw)], zone, seq=[0])[0][0]  # first-pass reading
+            hi = to_epoch_seconds([max(raw)], zone, seq=[0])[0][0]
+            rows = self._fetch(select(s["tag"], s["time"], s["seq"]).where(
+                s["tag"].in_(sorted(set(tags.tolist()))), s["time"] >= self._bound(lo, True),
+                s["time"] <= self._bound(hi, False), s["seq"] <= context_below_seq))
+            tags = np.concatenate([tags, np.array([r[0] for r in rows], dtype=object)])
+            seq = np.concatenate([seq, np.array([r[2] for r in rows], dtype=np.int64)])
+            raw += [r[1] for r in rows]
+        t, why = to_epoch_seconds(np.array(raw, dtype=object), self.h.naive_timezone, seq=seq,
+                                  group=tags)
+        k = 0
+        for i, pos, _ in pending:
+            chunks[i][1][pos] = t[k:k + len(pos)]
+            chunks[i][5][pos] = why[k:k + len(pos)]
+            k += len(pos)
+
+    def _detect_time_style(self) -> str | None:
         col = self.samples["time"]
         row = None
         with self.engine.connect() as conn:
             row = conn.execute(select(col).where(col.is_not(None)).limit(1)).first()
         if row is None:
-            return "text-T"
+            return None  # an empty table: detected again when it has rows
         v = row[0]
-        if isinstance(v, int | float):
+        if isinstance(v, int | float | Decimal) and not isinstance(v, bool):
             return "epoch"
         if isinstance(v, str):
             has_off = v.endswith("Z") or (len(v) > 6 and v[-6] in "+-" and v[-3] == ":")
@@ -90,6 +130,12 @@ class HistorianReader:
         if getattr(v, "tzinfo", None) is not None:
             return "datetime-aware"
         return "datetime-naive"
+
+    @property
+    def _time_style(self) -> str:
+        if self._detected_style is None:
+            self._detected_style = self._retry(self._detect_time_style, "samples")
+        return self._detected_style or "text-T"
 
     def _bound(self, t_s: float, lower: bool):
         """Comparison value for the time column, widened so no row is missed."""
@@ -168,27 +214,36 @@ class HistorianReader:
         cols.append(s["seq"] if s["seq"] is not None else s["tag"].label("no_seq"))
         return select(*cols)
 
-    def _normalise_chunk(self, rows):
-        """Raw rows to arrays: tag, t_s, value, quality-ok, seq, time reason."""
+    def _normalise_chunk(self, rows, pending: list | None = None, index: int = 0):
+        """Raw rows to arrays: tag, t_s, value, quality-ok, seq, time reason.
+
+        With a seq column, rows in a repeated hour are left to `_resolve_repeated_hour`:
+        (``index``, their positions, their raw times) go to ``pending``.
+        """
         if not rows:
             e = np.empty(0)
             return (np.empty(0, dtype=object), e, e, np.empty(0, bool), None,
                     np.empty(0, dtype=object))
-        tags = np.array([r[0] for r in rows], dtype=object)
-        value = np.array([np.nan if r[2] is None else r[2] for r in rows], dtype=object)
+        n = len(rows)
+        tag_col, times, value_col, quality_col, seq_col = zip(*rows, strict=True)
+        # one string object per tag, not one per row (memory on long backfills)
+        codes, names = pd.factorize(np.array(tag_col, dtype=object), use_na_sentinel=False)
+        tags = np.asarray(names, dtype=object)[codes]
         try:
-            value = value.astype(float)
+            value = np.array(value_col, dtype=float)  # None -> NaN
         except (TypeError, ValueError):
-            value = np.array([_to_float(v) for v in value])
+            value = np.array([_to_float(v) for v in value_col])
         if self.samples["quality"] is not None:
-            good = np.array([(q in self._good) or (str(q) in self._good) for q in
-                             (r[3] for r in rows)], dtype=bool)
+            ok = self._good
+            good = np.fromiter(((q in ok) or (str(q) in ok) for q in quality_col), bool, n)
         else:
-            good = np.ones(len(rows), dtype=bool)
-        seq = (np.array([r[4] for r in rows], dtype=np.int64)
-               if self.samples["seq"] is not None else None)
-        t, why = to_epoch_seconds([r[1] for r in rows], self.h.naive_timezone, seq=seq,
-                                  group=tags)
+            good = np.ones(n, dtype=bool)
+        seq = np.array(seq_col, dtype=np.int64) if self.samples["seq"] is not None else None
+        t, why = to_epoch_seconds(np.array(times, dtype=object), self.h.naive_timezone)
+        if seq is not None and pending is not None:
+            repeated = np.flatnonzero(why == AMBIGUOUS)
+            if len(repeated):
+                pending.append((index, repeated, [times[i] for i in repeated]))
         return tags, t, value, good, seq, why
 
     def _clean(self, chunks, quality: QualitySummary, start_s=None, end_s=None,
@@ -199,8 +254,11 @@ class HistorianReader:
             if not len(tags):
                 continue
             order = np.arange(len(tags)) if seq is None else np.argsort(seq, kind="stable")
-            for tag in np.unique(tags):
-                m = order[tags[order] == tag]
+            codes, names = pd.factorize(tags[order], use_na_sentinel=False)
+            by_code = np.argsort(codes, kind="stable")  # keeps insertion order within a tag
+            cuts = np.searchsorted(codes[by_code], np.arange(len(names) + 1))
+            for k, tag in enumerate(names):
+                m = order[by_code[cuts[k]:cuts[k + 1]]]
                 by_tag[str(tag)].append((t[m], value[m], good[m], why[m]))
         out = {}
         for tag, parts in by_tag.items():
@@ -307,10 +365,16 @@ class HistorianReader:
         """A watermark that starts reading at ``since_s``."""
         if self.samples["seq"] is not None:
             s = self.samples
-            stmt = select(s["seq"]).where(s["time"] < self._bound(since_s, True)).order_by(
-                s["seq"].desc()).limit(1)
-            rows = self._fetch(stmt)
-            return {"mode": "seq", "seq": int(rows[0][0]) if rows else -1, "recent": []}
+            # just below the first row at or after since_s: a late row (old time, high
+            # seq) must not move the start past rows of the period asked for
+            first = self._fetch(select(func.min(s["seq"])).where(
+                s["time"] >= self._bound(since_s, True)))[0][0]
+            if first is not None:
+                last = int(first) - 1
+            else:  # nothing since then yet: start after the newest row
+                newest = self._fetch(select(func.max(s["seq"])))[0][0]
+                last = -1 if newest is None else int(newest)
+            return {"mode": "seq", "seq": last, "recent": []}
         return {"mode": "time", "t_s": since_s, "keys": []}
 
     def poll(self, watermark: dict | None, tags: list[str] | None = None) -> PollResult:
@@ -334,21 +398,31 @@ class HistorianReader:
         last = int(wm.get("seq", -1))
         floor = max(last - window, -1)
         recent = set(wm.get("recent", []))
-        stmt = self._sample_select().where(and_(s["tag"].in_(tags), s["seq"] > floor))
+        tag = s["tag"]
+        if self.engine.dialect.name == "sqlite" and self._seq_leads_an_index():
+            # without statistics SQLite's planner takes the (tag, time) index for the IN
+            # list and walks every row of those tags; an expression keeps it on seq
+            tag = tag.concat("")
+        stmt = self._sample_select().where(and_(tag.in_(tags), s["seq"] > floor))
         quality = QualitySummary()
-        chunks = self._stream(stmt.order_by(s["seq"]))
-        kept = []
+        chunks = self._stream(stmt.order_by(s["seq"]), context_below_seq=floor)
+        kept, again = [], []
         rows_read = 0
         new_max = last
         delivered = set()
-        for tags_c, t, v, g, seq, why in chunks:
+        for chunk in chunks:
+            seq = chunk[4]
             rows_read += len(seq)
             fresh = np.array([q not in recent for q in seq.tolist()], dtype=bool)
             if len(seq):
                 new_max = max(new_max, int(seq.max()))
             delivered.update(seq[fresh].tolist())
-            kept.append((tags_c[fresh], t[fresh], v[fresh], g[fresh], seq[fresh], why[fresh]))
-        samples = self._clean(kept, quality)
+            kept.append(tuple(a[fresh] for a in chunk))
+            again.append(tuple(a[~fresh] for a in chunk))
+        # a row re-sent within the re-read window repeats a sample delivered before
+        seen = {(tag, float(x)) for tag, x_s in self._clean(again, QualitySummary()).items()
+                for x in x_s.t_s}
+        samples = self._clean(kept, quality, key_seen=seen or None)
         keep_from = new_max - window
         recent = sorted(q for q in recent | delivered if q > keep_from)
         return PollResult(samples, {"mode": "seq", "seq": new_max, "recent": recent}, quality,
@@ -383,8 +457,29 @@ class HistorianReader:
         return PollResult(samples, {"mode": "time", "t_s": t_max, "keys": keys}, quality,
                           rows_read)
 
+    def _seq_leads_an_index(self) -> bool:
+        """Whether rows can be found by a range of seq (its primary key or an index)."""
+        seq, table = self.samples["seq"], self.samples.table
+        if seq.primary_key and len(table.primary_key.columns) == 1:
+            return True
+        return any(list(ix.columns)[:1] == [seq] for ix in table.indexes)
+
     def close(self) -> None:
         self.engine.dispose()
+
+
+@contextmanager
+def _cyclic_gc_paused():
+    """Cyclic garbage collection off while rows stream in: the rows hold no cycles, and
+    collector passes over them took about half the time of a long backfill (measured,
+    tests/benchmarks/bench_reader.py)."""
+    was_enabled = gc.isenabled()
+    gc.disable()
+    try:
+        yield
+    finally:
+        if was_enabled:
+            gc.enable()
 
 
 def _to_float(v) -> float:

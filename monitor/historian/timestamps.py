@@ -12,7 +12,10 @@ such rows are ambiguous and left out (counted). A time that does not exist
 
 from __future__ import annotations
 
+import re
+import warnings
 from datetime import datetime
+from decimal import Decimal
 
 import numpy as np
 import pandas as pd
@@ -32,8 +35,43 @@ def _parse_naive_text(base: pd.Series) -> np.ndarray:
         return parsed.to_numpy(dtype="datetime64[us]").astype(np.int64)
 
 
+def _fixed_width_parts(values: np.ndarray):
+    """Fast path of `_text_to_parts`: ISO text all of one width, with one common offset (or
+    none), parsed by numpy. ``None`` when the column is not like that."""
+    try:
+        text = np.asarray(values, dtype=str)
+    except (TypeError, ValueError):
+        return None
+    n, width = len(text), text.dtype.itemsize // 4
+    if n == 0 or width < 10 or (np.char.str_len(text) != width).any():
+        return None
+    chars = text.view(np.uint32).reshape(n, width)
+    first = str(text[0])
+    if first.endswith("Z"):
+        cut, off = 1, 0.0
+    elif re.match(_OFFSET, first[-6:]) and ":" in first[-6:]:
+        cut, off = 6, (-1 if first[-6] == "-" else 1) * (int(first[-5:-3]) * 60 + int(first[-2:]))
+    elif re.match(_OFFSET, first[-5:]) and width > 15:
+        cut, off = 5, (-1 if first[-5] == "-" else 1) * (int(first[-4:-2]) * 60 + int(first[-2:]))
+    else:
+        cut, off = 0, np.nan
+    if cut and not (chars[:, width - cut:] == chars[0, width - cut:]).all():
+        return None
+    base = np.ascontiguousarray(chars[:, :width - cut]).view(f"<U{width - cut}").ravel()
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("error")  # numpy reads an offset left in the text: not here
+            naive_us = base.astype("datetime64[us]").astype(np.int64)
+    except (ValueError, DeprecationWarning, UserWarning):
+        return None
+    return naive_us, np.full(n, float(off))
+
+
 def _text_to_parts(values: np.ndarray):
     """Split text into naive microseconds and offset minutes (NaN = no offset)."""
+    fast = _fixed_width_parts(values)
+    if fast is not None:
+        return fast
     sr = pd.Series(values, dtype=object).astype(str).str.strip()
     tail6 = sr.str[-6:]
     tail5 = sr.str[-5:]
@@ -123,7 +161,9 @@ def to_epoch_seconds(values, naive_zone: str, *, seq=None, group=None):
         return np.empty(0), np.empty(0, dtype=object)
     first = next((v for v in arr if v is not None), None)
     reason = np.full(n, None, dtype=object)
-    if isinstance(first, int | float | np.integer | np.floating) and not isinstance(first, bool):
+    # Decimal: MySQL/MariaDB DOUBLE and NUMERIC columns reflect as Decimal-returning types
+    if isinstance(first, int | float | Decimal | np.integer | np.floating) and not isinstance(
+            first, bool):
         t = np.asarray(arr, dtype=float)
         reason[~np.isfinite(t)] = BAD_TIME
         return t, reason
