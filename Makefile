@@ -4,6 +4,9 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed
 
+# small dense matrices: one BLAS thread per process (see monitor/cli.py)
+export OPENBLAS_NUM_THREADS ?= 1
+
 .PHONY: demo test lint bench clean venv
 
 $(STAMP): pyproject.toml

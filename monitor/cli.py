@@ -8,7 +8,12 @@ from __future__ import annotations
 
 import argparse
 import logging
+import os
 import sys
+
+# Small dense matrices (fit Jacobians): a multi-threaded BLAS only contends for the two
+# cores with the rest of the process; a site can still override this from the environment.
+os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
 
 from . import __version__
 from .errors import MonitorError, UsageError
