@@ -100,6 +100,7 @@ def build_parser() -> argparse.ArgumentParser:
     p = add("watch", "live-refreshing terminal view of status", "convmon watch")
     _common(p, json_flag=False)
     p.add_argument("--interval", type=float, default=5.0, help="refresh period [s]")
+    p.add_argument("--count", type=int, help="stop after N refreshes (default: until Ctrl-C)")
     return parser
 
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import sys
+from datetime import datetime
 
 from . import api
 from .config import load_config
@@ -87,28 +88,49 @@ def cmd_status(args) -> int:
         return 0
     from rich.console import Console
 
-    Console().print(status_table(doc, cfg.site.timezone))
+    import time as _time
+
+    Console().print(status_table(doc, cfg.site.timezone, now_s=_time.time()))
     return 0
 
 
+def _plain_lines(doc: dict, zone: str, now_s: float) -> list[str]:
+    beat = doc.get("heartbeat") or {}
+    lines = [f"{formats.local(now_s, zone)} last good cycle {beat.get('last_good_cycle')}"]
+    for r in doc["status"]:
+        age = (now_s - datetime.fromisoformat(r["at"]).timestamp()) / 60
+        lines.append(f"{r['unit']} {r['batch']} {r['recipe']} X={r['conversion']:.3f}"
+                     f"±{r['conversion_sd']:.3f} P50={r['predicted_end']} "
+                     f"P10={r['predicted_end_p10']} P90={r['predicted_end_p90']} "
+                     f"alerts={','.join(r['alerts']) or '-'} data_age_min={age:.0f}")
+    return lines
+
+
 def cmd_watch(args) -> int:
+    """Refresh the status view; plain lines when stdout is not a terminal."""
     import time as _time
 
     from .outputs.board import status_table
 
     cfg = load_config(args.config)
+    zone = cfg.site.timezone
+    n = 0
     if not sys.stdout.isatty():
-        doc = status_doc(cfg)
-        for r in doc["status"]:
-            print(f"{r['unit']} {r['batch']} {r['recipe']} X={r['conversion']:.3f}"
-                  f"±{r['conversion_sd']:.3f} P50={r['predicted_end']} alerts={r['alerts']}")
+        while args.count is None or n < args.count:
+            if n:
+                _time.sleep(args.interval)
+            print("\n".join(_plain_lines(status_doc(cfg), zone, _time.time())), flush=True)
+            n += 1
         return 0
     from rich.live import Live
 
-    with Live(status_table(status_doc(cfg), cfg.site.timezone), refresh_per_second=2) as live:
-        while True:
+    with Live(status_table(status_doc(cfg), zone, now_s=_time.time()),
+              refresh_per_second=2) as live:
+        while args.count is None or n < args.count:
             _time.sleep(args.interval)
-            live.update(status_table(status_doc(cfg), cfg.site.timezone))
+            live.update(status_table(status_doc(cfg), zone, now_s=_time.time()))
+            n += 1
+    return 0
 
 
 def cmd_demo(args) -> int:

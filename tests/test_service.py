@@ -78,3 +78,19 @@ def test_store_migrations_upgrade_and_refuse_newer(tmp_path):
         assert "newer convmon" in str(exc) and exc.exit_code == 3
     else:
         raise AssertionError("a newer store was opened")
+
+
+def test_watch_prints_plain_lines_off_a_terminal(sample_plant, tmp_path):
+    cfg = _config(sample_plant, tmp_path)
+    from monitor.config import load_config
+    from monitor.service import Monitor
+
+    Monitor(load_config(cfg)).cycle()
+    r = subprocess.run([sys.executable, "-m", "monitor", "watch", "--config", cfg, "--count",
+                        "2", "--interval", "0.1"], capture_output=True, text=True)
+    assert r.returncode == 0, r.stderr
+    lines = r.stdout.strip().splitlines()
+    running = [b["batch"] for b in sample_plant.truth["batches"] if b["state"] == "running"]
+    assert len(lines) == 2 * (1 + len(running))
+    assert all(any(b in line for line in lines) for b in running)
+    assert "\x1b[" not in r.stdout  # no terminal control codes in a pipe
