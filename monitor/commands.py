@@ -86,9 +86,9 @@ def cmd_status(args) -> int:
     if args.json:
         print(formats.dumps(doc))
         return 0
-    from rich.console import Console
-
     import time as _time
+
+    from rich.console import Console
 
     Console().print(status_table(doc, cfg.site.timezone, now_s=_time.time()))
     return 0
