@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from datetime import datetime
 
-from .batch.estimator import Estimate, EstimatorSettings, estimate
+from .batch.estimator import Estimate, estimate
 from .batch.state import BatchState, RecipeModel
 from .config import Config
 from .errors import ConfigError, DataQualityError, UsageError
@@ -94,7 +94,7 @@ def estimate_batch(cfg: Config, batch_id: str, at_s: float | None = None,
     state = build_state(cfg, data, model)
     at = until if until is not None else (now_s or float(data.temperature.t_s[-1]))
     rc = cfg.recipe(b.recipe)
-    est = estimate(state, at, EstimatorSettings.from_config(cfg.estimator), safety=rc.safety)
+    est = estimate(state, at, cfg.estimator, safety=rc.safety)
     summary = data.quality.as_rows()
     if summary:
         est.warnings.append("excluded samples: " + ", ".join(

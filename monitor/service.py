@@ -19,7 +19,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from .api import build_state, recipe_model
-from .batch.estimator import EstimatorSettings, estimate
+from .batch.estimator import estimate
 from .config import Config
 from .errors import ConfigError, LockError, MonitorError
 from .historian.model import Batch
@@ -56,13 +56,14 @@ class Monitor:
 
             self.writer = WriteBack(cfg.writeback)
         self._wb_backlog: list = []
-        self.settings = EstimatorSettings.from_config(cfg.estimator)
+        self.settings = cfg.estimator
         self.states: dict = {}
         self.known: dict[str, Batch] = {}
         self.models: dict = {}
         self.watermark = self.store.load_watermark()
         self._open_alerts = {(a["batch"], a["kind"]): a for a in self.store.open_alerts()}
         self._store_running = set(self.store.running_batches())
+        self._unmonitored: set[str] = set()  # batches already reported as not configured
 
     def _model(self, recipe: str):
         if recipe not in self.models:
@@ -71,8 +72,10 @@ class Monitor:
 
     def _start_batch(self, b: Batch, until_s: float | None = None):
         if self.cfg.recipe(b.recipe) is None or self.cfg.unit(b.unit) is None:
-            log.warning("batch %s: recipe %s or unit %s not configured; not monitored",
-                        b.batch, b.recipe, b.unit)
+            if b.batch not in self._unmonitored:  # once, not on every cycle
+                self._unmonitored.add(b.batch)
+                log.warning("batch %s: recipe %s or unit %s not configured; not monitored",
+                            b.batch, b.recipe, b.unit)
             return None
         data = self.reader.read_batch(b, until_s=until_s)
         state = build_state(self.cfg, data, self._model(b.recipe))

@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..config import EstimatorConfig
 from ..physics.trace import (
     plan_temperature,
     reversible_segments,
@@ -54,18 +55,8 @@ class Estimate:
     safety: dict = field(default_factory=dict)
 
 
-@dataclass(frozen=True)
-class EstimatorSettings:
-    max_gap_s: float = 300.0
-    monte_carlo_draws: int = 1000
-    seed: int = 20261201
-    mismatch_sigma: float = 4.0
-    horizon_h: float = 72.0
-
-    @classmethod
-    def from_config(cls, est) -> EstimatorSettings:
-        return cls(est.max_gap_s, est.monte_carlo_draws, est.seed, est.mismatch_sigma,
-                   est.horizon_h)
+#: The estimator's settings are the ``[estimator]`` table of the configuration.
+EstimatorSettings = EstimatorConfig
 
 
 def posterior_for(state: BatchState, at_s: float, settings: EstimatorSettings):
