@@ -1,10 +1,10 @@
 """Fit kinetics from a recipe's plant history, or from isothermal lab data.
 
 Service level: reads the historian through the reader, runs the fits of
-`monitor.physics.fitting`, writes the kinetics file (with its ``[provenance]``)
-and two PNG plots beside it, and returns the ``fit`` document of INTERFACE.md.
-It prints nothing; progress goes to an optional object with the methods
-``loading(done, total, name)``, ``iteration(n)`` and ``stage(text)``.
+`monitor.physics.fitting` and `monitor.physics.lab_kinetics`, writes the kinetics
+file (with its ``[provenance]``) and two PNG plots beside it, and returns the ``fit``
+document of INTERFACE.md. It prints nothing; progress goes to an optional object with
+the methods ``loading(done, total, name)``, ``iteration(n)`` and ``stage(text)``.
 """
 
 from __future__ import annotations
@@ -22,15 +22,8 @@ from . import __version__
 from .config import Config
 from .errors import ConfigError, DataQualityError, KineticsError, UsageError
 from .kinetics import Kinetics, load_kinetics, write_kinetics
-from .physics.fitting import (
-    FitSeries,
-    PlantFit,
-    excluded_mask,
-    fit_arrhenius,
-    fit_batches,
-    fit_differential,
-    fit_integral,
-)
+from .physics.fitting import FitSeries, PlantFit, excluded_mask, fit_batches
+from .physics.lab_kinetics import fit_arrhenius, fit_differential, fit_integral
 from .units import to_kelvin
 
 FIT_METHOD = ("weighted nonlinear least squares (scipy.optimize.least_squares, trf, analytic "

@@ -1,4 +1,5 @@
-"""Kinetics fitting (monitor.physics.fitting): published examples, recovery and coverage.
+"""Kinetics fitting (monitor.physics.lab_kinetics and .fitting): published examples, recovery
+and coverage.
 
 Synthetic plant data here are made by an independent path: the batch mole balance
 integrated with scipy's ``solve_ivp`` (DOP853) on the *true* smooth temperature,
@@ -20,11 +21,9 @@ from monitor.physics.fitting import (
     _Problem,
     _Spec,
     excluded_mask,
-    fit_arrhenius,
     fit_batches,
-    fit_differential,
-    fit_integral,
 )
+from monitor.physics.lab_kinetics import fit_arrhenius, fit_differential, fit_integral
 from monitor.physics.trace import segment_integrals
 
 R = 8.314462618  # CODATA 2018 [J/(mol K)]
