@@ -28,6 +28,34 @@ from .timestamps import AMBIGUOUS, format_bound, to_epoch_seconds
 DAY_S = 86_400.0
 
 
+class _RowProgress:
+    """A row counter on stderr while a long read streams, only when stderr is a terminal."""
+
+    def __init__(self, label: str | None):
+        self.bar = None
+        if label and sys.stderr.isatty():
+            from rich.console import Console
+            from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
+
+            self.bar = Progress(SpinnerColumn(), TextColumn(label),
+                                TextColumn("{task.completed:,.0f} rows"), TimeElapsedColumn(),
+                                console=Console(stderr=True), transient=True)
+            self.task = self.bar.add_task(label, total=None)
+
+    def __enter__(self):
+        if self.bar:
+            self.bar.start()
+        return self
+
+    def advance(self, n: int) -> None:
+        if self.bar:
+            self.bar.advance(self.task, n)
+
+    def __exit__(self, *exc):
+        if self.bar:
+            self.bar.stop()
+
+
 class HistorianReader:
     """Read-only access to a plant historian export through SQLAlchemy Core."""
 
@@ -69,16 +97,13 @@ class HistorianReader:
 
         def run():
             chunks, pending = [], []
-            with self.engine.connect() as conn, _cyclic_gc_paused():
+            with self.engine.connect() as conn, _cyclic_gc_paused(), \
+                    _RowProgress(progress_label) as progress:
                 result = conn.execution_options(stream_results=True,
                                                 yield_per=self.h.fetch_rows).execute(stmt)
                 for part in result.partitions(self.h.fetch_rows):
                     chunks.append(self._normalise_chunk(part, pending, len(chunks)))
-                    if progress_label and sys.stderr.isatty():
-                        n = sum(len(c[0]) for c in chunks)
-                        print(f"\r{progress_label}: {n:,} rows", end="", file=sys.stderr)
-            if progress_label and sys.stderr.isatty():
-                print(file=sys.stderr)
+                    progress.advance(len(part))
             return chunks, pending
 
         chunks, pending = self._retry(run, "query")
@@ -334,7 +359,7 @@ class HistorianReader:
             tags = [u.temperature_tag] + ([u.assay_tag] if u.assay_tag else [])
             lo = min(b.start_s for b in bs)
             hi = max((b.end_s or now) for b in bs)
-            found, _ = self.read_tags(tags, lo, hi)
+            found, _ = self.read_tags(tags, lo, hi, progress_label=f"reading {unit_name}")
             for i, tag in enumerate(tags):
                 ts = found[tag].t_s
                 for b in bs:
