@@ -37,6 +37,10 @@ def list_batches(cfg: Config, unit: str | None = None, recipe: str | None = None
     reader = open_reader(cfg)
     try:
         batches, problems = reader.batches(unit=unit, recipe=recipe)
+        if not batches and unit is None and recipe is None and not problems:
+            raise DataQualityError(
+                f"the export has no batches: no {cfg.historian.start_event!r} events in table "
+                f"{cfg.historian.events_table!r} (check historian.start_event and events_table)")
         counts = reader.sample_counts(batches) if batches else {}
     finally:
         reader.close()
