@@ -110,7 +110,7 @@ class Monitor:
             batch_rows.append({"batch": b.batch, "unit": b.unit, "recipe": b.recipe,
                                "start_s": b.start_s, "end_s": b.end_s, "state": b.state})
         for tag, samples in poll.samples.items():
-            role_unit = self.reader._units_by_tag.get(tag)
+            role_unit = self.reader.role_of(tag)
             if role_unit is None or not len(samples):
                 continue
             role, unit = role_unit

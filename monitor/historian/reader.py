@@ -75,6 +75,10 @@ class HistorianReader:
         self._good = set(h.good_quality) | {str(q) for q in h.good_quality}
         self._detected_style = self._retry(self._detect_time_style, "samples")
 
+    def role_of(self, tag: str):
+        """``(role, UnitConfig)`` of a configured tag (role: temperature, assay, charge)."""
+        return self._units_by_tag.get(tag)
+
     # ------------------------------------------------------------ plumbing
     def _retry(self, fn, what):
         return with_retry(fn, retries=self.h.retries, what=f"historian ({what})")
