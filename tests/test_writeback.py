@@ -35,7 +35,10 @@ def test_writeback_is_idempotent(wb_url):
             n = conn.execute(text(f"SELECT COUNT(*) FROM {table}")).scalar()  # noqa: S608
             q = conn.execute(text(f"SELECT quality, value FROM {table} "  # noqa: S608
                                   "WHERE tag = 'CM.R-2.END_P50'")).one()
+            end = conn.execute(text(f"SELECT value FROM {table} "  # noqa: S608
+                                    "WHERE tag = 'CM.R-1.END_P50'")).scalars().all()
         assert n == 18
+        assert end == [1_800_003_600.0]  # epoch seconds kept to the second (double precision)
         assert q[0] == BAD_NO_DATA and q[1] is None  # unreachable target: no value, Bad
     finally:
         with wb.engine.begin() as conn:

@@ -11,7 +11,7 @@ from __future__ import annotations
 from sqlalchemy import (
     BigInteger,
     Column,
-    Float,
+    Double,
     MetaData,
     PrimaryKeyConstraint,
     String,
@@ -42,7 +42,8 @@ class WriteBack:
         self.engine = create_engine(cfg.url, pool_pre_ping=True)
         meta = MetaData()
         self.table = Table(cfg.table, meta, Column("tag", String(128), nullable=False),
-                           Column("ts", String(40), nullable=False), Column("value", Float),
+                           # double precision: end times are epoch seconds
+                           Column("ts", String(40), nullable=False), Column("value", Double),
                            Column("quality", BigInteger),
                            PrimaryKeyConstraint("tag", "ts", name=f"pk_{cfg.table}"))
         try:

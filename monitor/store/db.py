@@ -15,17 +15,19 @@ from pathlib import Path
 
 from sqlalchemy import (
     Column,
-    Float,
+    Double,
     Integer,
     MetaData,
     String,
     Table,
     Text,
     UniqueConstraint,
+    bindparam,
     create_engine,
     insert,
     inspect,
     select,
+    text,
     update,
 )
 from sqlalchemy.engine import Engine, make_url
@@ -38,16 +40,16 @@ meta = MetaData()
 
 batches = Table("batches", meta,
                 Column("batch", String(64), primary_key=True), Column("unit", String(64)),
-                Column("recipe", String(64)), Column("start_s", Float), Column("end_s", Float),
+                Column("recipe", String(64)), Column("start_s", Double), Column("end_s", Double),
                 Column("state", String(16)))
 estimates = Table("estimates", meta,
                   Column("id", Integer, primary_key=True, autoincrement=True),
                   Column("batch", String(64), nullable=False),
-                  Column("at_s", Float, nullable=False),
-                  Column("conversion", Float), Column("conversion_sd", Float),
-                  Column("activity", Float), Column("activity_sd", Float),
-                  Column("target_conversion", Float), Column("predicted_end_s", Float),
-                  Column("p10_s", Float), Column("p90_s", Float), Column("forecast_note", Text),
+                  Column("at_s", Double, nullable=False),
+                  Column("conversion", Double), Column("conversion_sd", Double),
+                  Column("activity", Double), Column("activity_sd", Double),
+                  Column("target_conversion", Double), Column("predicted_end_s", Double),
+                  Column("p10_s", Double), Column("p90_s", Double), Column("forecast_note", Text),
                   Column("n_assays_used", Integer), Column("warnings", Text),
                   Column("kinetics_version", String(32)), Column("doc", Text),
                   UniqueConstraint("batch", "at_s", name="uq_estimate_batch_at"))
@@ -55,7 +57,7 @@ alerts = Table("alerts", meta,
                Column("id", Integer, primary_key=True, autoincrement=True),
                Column("batch", String(64), nullable=False), Column("kind", String(32)),
                Column("severity", String(16)), Column("state", String(16)),
-               Column("raised_at_s", Float), Column("cleared_at_s", Float),
+               Column("raised_at_s", Double), Column("cleared_at_s", Double),
                Column("acked_by", String(64)), Column("message", Text),
                UniqueConstraint("batch", "kind", "raised_at_s", name="uq_alert"))
 watermarks = Table("watermarks", meta, Column("name", String(64), primary_key=True),
@@ -63,14 +65,14 @@ watermarks = Table("watermarks", meta, Column("name", String(64), primary_key=Tr
 kinetics_versions = Table("kinetics_versions", meta,
                           Column("version", String(32), primary_key=True),
                           Column("recipe", String(64)), Column("source", Text),
-                          Column("first_used_s", Float))
+                          Column("first_used_s", Double))
 archive_index = Table("archive_index", meta,
                       Column("id", Integer, primary_key=True, autoincrement=True),
                       Column("batch", String(64)), Column("version", Integer),
                       Column("pdf", Text), Column("json", Text), Column("sha256", String(64)),
-                      Column("created_s", Float))
+                      Column("created_s", Double))
 heartbeat = Table("heartbeat", meta, Column("name", String(32), primary_key=True),
-                  Column("last_good_cycle_s", Float), Column("last_data_s", Float),
+                  Column("last_good_cycle_s", Double), Column("last_data_s", Double),
                   Column("cycles", Integer), Column("failed_cycles", Integer),
                   Column("message", Text))
 migrations_table = Table("schema_migrations", meta,
@@ -87,10 +89,27 @@ def _m002_heartbeat(conn) -> None:
     meta.create_all(conn, tables=[heartbeat])
 
 
+def _m003_double_precision(conn) -> None:
+    """Times and values as DOUBLE on MySQL/MariaDB, where FLOAT is single precision.
+
+    A single-precision epoch time resolves about 128 s, so polls 30 s apart collided on
+    (batch, at_s). SQLite REAL and PostgreSQL FLOAT are double precision already.
+    """
+    if conn.dialect.name not in ("mysql", "mariadb"):
+        return
+    quote = conn.dialect.identifier_preparer.quote
+    for table in (batches, estimates, alerts, kinetics_versions, archive_index, heartbeat):
+        # Core has no ALTER COLUMN; the names are this module's constants, not input
+        changes = ", ".join(f"MODIFY {quote(c.name)} DOUBLE{'' if c.nullable else ' NOT NULL'}"
+                            for c in table.columns if isinstance(c.type, Double))
+        conn.execute(text(f"ALTER TABLE {quote(table.name)} {changes}"))
+
+
 #: Named migrations, applied in order and recorded; never edit one that shipped.
 MIGRATIONS: list[tuple[str, Callable]] = [
     ("0001_initial", _m001_initial),
     ("0002_heartbeat", _m002_heartbeat),
+    ("0003_double_precision", _m003_double_precision),
 ]
 
 
@@ -150,24 +169,16 @@ class Store:
     def commit_cycle(self, *, watermark: dict, batch_rows: list[dict], estimate_rows: list[dict],
                      alert_changes: list[dict], kinetics_rows: list[dict], now_s: float,
                      last_data_s: float | None) -> dict:
-        """Results and watermark in one transaction: all of it, or none of it."""
+        """Results and watermark in one transaction: all of it, or none of it.
+
+        Rows are looked up and written in sets (one SELECT per table and chunk, one
+        executemany per kind), so the cost per batch stays small at hundreds of batches.
+        """
         added = {"estimates": 0, "alerts": 0}
         try:
             with self.engine.begin() as conn:
-                for b in batch_rows:
-                    if conn.execute(select(batches.c.batch).where(
-                            batches.c.batch == b["batch"])).first():
-                        conn.execute(update(batches).where(batches.c.batch == b["batch"])
-                                     .values(**b))
-                    else:
-                        conn.execute(insert(batches).values(**b))
-                for e in estimate_rows:
-                    exists = conn.execute(select(estimates.c.id).where(
-                        (estimates.c.batch == e["batch"])
-                        & (estimates.c.at_s == e["at_s"]))).first()
-                    if not exists:
-                        conn.execute(insert(estimates).values(**e))
-                        added["estimates"] += 1
+                _upsert_batches(conn, batch_rows)
+                added["estimates"] = _insert_new_estimates(conn, estimate_rows)
                 for a in alert_changes:
                     if a["op"] == "raise":
                         row = {k: v for k, v in a.items() if k != "op"}
@@ -176,10 +187,7 @@ class Store:
                     else:
                         conn.execute(update(alerts).where(alerts.c.id == a["id"]).values(
                             state="cleared", cleared_at_s=a["cleared_at_s"]))
-                for k in kinetics_rows:
-                    if not conn.execute(select(kinetics_versions.c.version).where(
-                            kinetics_versions.c.version == k["version"])).first():
-                        conn.execute(insert(kinetics_versions).values(**k))
+                _insert_new_kinetics(conn, kinetics_rows)
                 value = json.dumps(watermark, separators=(",", ":"))
                 if conn.execute(select(watermarks.c.name).where(
                         watermarks.c.name == "historian")).first():
@@ -263,3 +271,73 @@ class Store:
 
     def close(self) -> None:
         self.engine.dispose()
+
+
+#: Keys per IN list: well inside every backend's limit on bound parameters.
+_CHUNK = 400
+
+
+def _chunks(items: list, size: int = _CHUNK):
+    for i in range(0, len(items), size):
+        yield items[i:i + size]
+
+
+def _upsert_batches(conn, batch_rows: list[dict]) -> None:
+    """Insert new batches, update those whose row changed (the last row given wins)."""
+    rows = {b["batch"]: b for b in batch_rows}
+    have = {}
+    for part in _chunks(list(rows)):
+        have.update((r.batch, r._asdict()) for r in conn.execute(
+            select(batches).where(batches.c.batch.in_(part))))
+    new = [r for k, r in rows.items() if k not in have]
+    changed = [{**{c: v for c, v in r.items() if c != "batch"}, "key": k}
+               for k, r in rows.items() if k in have and
+               any(have[k].get(c) != v for c, v in r.items())]
+    if new:
+        conn.execute(insert(batches), new)
+    for cols, group in _by_columns(changed).items():
+        conn.execute(update(batches).where(batches.c.batch == bindparam("key"))
+                     .values({c: bindparam(c) for c in cols if c != "key"}), group)
+
+
+def _by_columns(rows: list[dict]) -> dict:
+    """Rows grouped by their set of keys (an executemany needs one shape)."""
+    out: dict = {}
+    for r in rows:
+        out.setdefault(tuple(sorted(r)), []).append(r)
+    return out
+
+
+def _insert_new_estimates(conn, estimate_rows: list[dict]) -> int:
+    """Insert the estimates whose (batch, at_s) is not stored yet; returns how many."""
+    keys = list(dict.fromkeys((e["batch"], e["at_s"]) for e in estimate_rows))
+    have = set()
+    for part in _chunks(keys):
+        stmt = select(estimates.c.batch, estimates.c.at_s).where(
+            estimates.c.batch.in_(sorted({k[0] for k in part})),
+            estimates.c.at_s.in_(sorted({k[1] for k in part})))
+        have.update((r[0], r[1]) for r in conn.execute(stmt))
+    new, seen = [], set()
+    for e in estimate_rows:
+        key = (e["batch"], e["at_s"])
+        if key in have or key in seen:
+            continue
+        seen.add(key)
+        new.append(e)
+    for group in _by_columns(new).values():
+        conn.execute(insert(estimates), group)
+    return len(new)
+
+
+def _insert_new_kinetics(conn, kinetics_rows: list[dict]) -> None:
+    """Record each kinetics version the first time it is used."""
+    rows = {}
+    for k in kinetics_rows:
+        rows.setdefault(k["version"], k)
+    have = set()
+    for part in _chunks(list(rows)):
+        have.update(r[0] for r in conn.execute(select(kinetics_versions.c.version).where(
+            kinetics_versions.c.version.in_(part))))
+    new = [r for v, r in rows.items() if v not in have]
+    for group in _by_columns(new).values():
+        conn.execute(insert(kinetics_versions), group)
