@@ -36,56 +36,87 @@ class _Parser(argparse.ArgumentParser):
 
 
 def _common(p: argparse.ArgumentParser, json_flag=True) -> None:
-    p.add_argument("--config", metavar="PATH",
-                   help="configuration file (default: $CONVMON_CONFIG, else ./convmon.toml)")
+    p.add_argument(
+        "--config",
+        metavar="PATH",
+        help="configuration file (default: $CONVMON_CONFIG, else ./convmon.toml)",
+    )
     if json_flag:
         p.add_argument("--json", action="store_true", help="print one JSON document on stdout")
 
 
 def build_parser() -> argparse.ArgumentParser:
-    parser = _Parser(prog="convmon", description="Conversion monitor for batch reactors: live "
-                     "conversion, predicted end time and drift from the plant historian.",
-                     epilog=EPILOG, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser = _Parser(
+        prog="convmon",
+        description="Conversion monitor for batch reactors: live "
+        "conversion, predicted end time and drift from the plant historian.",
+        epilog=EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
     parser.add_argument("--version", action="version", version=f"convmon {__version__}")
     parser.add_argument("-v", "--verbose", action="count", default=0, help="more log output")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
 
     def add(name, help_text, example):
-        p = sub.add_parser(name, help=help_text, description=help_text,
-                           epilog=f"example:\n  {example}",
-                           formatter_class=argparse.RawDescriptionHelpFormatter)
+        p = sub.add_parser(
+            name,
+            help=help_text,
+            description=help_text,
+            epilog=f"example:\n  {example}",
+            formatter_class=argparse.RawDescriptionHelpFormatter,
+        )
         COMMANDS[name] = (help_text, example)
         return p
 
-    p = add("demo", "the main job end to end on the embedded sample plant (no config needed)",
-            "convmon demo --out var/demo")
+    p = add(
+        "demo",
+        "the main job end to end on the embedded sample plant (no config needed)",
+        "convmon demo --out var/demo",
+    )
     p.add_argument("--out", metavar="DIR", default="var/demo", help="where the demo writes")
     p.add_argument("--fast", action="store_true", help="shorter replay (for tests)")
 
-    p = add("batches", "batches found in the export",
-            "convmon batches --unit R-101 --json")
+    p = add("batches", "batches found in the export", "convmon batches --unit R-101 --json")
     _common(p)
     p.add_argument("--unit")
     p.add_argument("--recipe")
 
-    p = add("estimate", "conversion now and predicted end time of one batch",
-            "convmon estimate --batch R101-0042 --at 2026-10-05T14:30 --json")
+    p = add(
+        "estimate",
+        "conversion now and predicted end time of one batch",
+        "convmon estimate --batch R101-0042 --at 2026-10-05T14:30 --json",
+    )
     _common(p)
     p.add_argument("--batch", required=True)
-    p.add_argument("--at", metavar="TIME",
-                   help="look back: use only data up to TIME (ISO 8601; no offset = site time)")
+    p.add_argument(
+        "--at",
+        metavar="TIME",
+        help="look back: use only data up to TIME (ISO 8601; no offset = site time)",
+    )
 
-    p = add("fit", "fit kinetics from the recipe's history (or a lab CSV)",
-            "convmon fit --recipe ES-12 --order free --out kinetics/es12-v2.toml")
+    p = add(
+        "fit",
+        "fit kinetics from the recipe's history (or a lab CSV)",
+        "convmon fit --recipe ES-12 --order free --out kinetics/es12-v2.toml",
+    )
     _common(p)
     p.add_argument("--recipe", required=True)
-    p.add_argument("--batches", metavar="B1,B2,...", help="only these batches (default: all "
-                   "complete batches of the recipe)")
-    p.add_argument("--law", choices=("power", "bimolecular", "autocatalytic", "reversible"),
-                   help="rate law (default: the recipe's current law; candidates compared)")
+    p.add_argument(
+        "--batches",
+        metavar="B1,B2,...",
+        help="only these batches (default: all complete batches of the recipe)",
+    )
+    p.add_argument(
+        "--law",
+        choices=("power", "bimolecular", "autocatalytic", "reversible"),
+        help="rate law (default: the recipe's current law; candidates compared)",
+    )
     p.add_argument("--order", metavar="N|free", help="fixed order, or 'free' to fit it")
-    p.add_argument("--lab-csv", metavar="FILE",
-                   help="isothermal lab data instead of the historian (time_s, T_K, c_a)")
+    p.add_argument(
+        "--lab-csv",
+        metavar="FILE",
+        help="isothermal lab data instead of the historian (time_s, T_K, c_a)",
+    )
     p.add_argument("--out", required=True, metavar="FILE", help="kinetics file to write")
     p.add_argument("--force", action="store_true", help="replace an existing --out file")
 
@@ -93,8 +124,7 @@ def build_parser() -> argparse.ArgumentParser:
     _common(p, json_flag=False)
     p.add_argument("--once", action="store_true", help="run one cycle and exit")
 
-    p = add("status", "running batches, their estimates and open alerts",
-            "convmon status --json")
+    p = add("status", "running batches, their estimates and open alerts", "convmon status --json")
     _common(p)
 
     p = add("watch", "live-refreshing terminal view of status", "convmon watch")
@@ -105,8 +135,11 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: list[str] | None = None) -> int:
-    logging.basicConfig(level=logging.WARNING, stream=sys.stderr,
-                        format="%(asctime)s %(levelname)s %(name)s: %(message)s")
+    logging.basicConfig(
+        level=logging.WARNING,
+        stream=sys.stderr,
+        format="%(asctime)s %(levelname)s %(name)s: %(message)s",
+    )
     try:
         parser = build_parser()
         args = parser.parse_args(argv)

@@ -33,9 +33,21 @@ def cmd_batches(args) -> int:
     for col in ("batch", "unit", "recipe", "start", "end", "state", "n_temperature", "n_assays"):
         table.add_column(col)
     for d in docs:
-        table.add_row(*[("" if d[c] is None else str(d[c])) for c in
-                        ("batch", "unit", "recipe", "start", "end", "state", "n_temperature",
-                         "n_assays")])
+        table.add_row(
+            *[
+                ("" if d[c] is None else str(d[c]))
+                for c in (
+                    "batch",
+                    "unit",
+                    "recipe",
+                    "start",
+                    "end",
+                    "state",
+                    "n_temperature",
+                    "n_assays",
+                )
+            ]
+        )
     Console().print(table)
     return 0
 
@@ -70,12 +82,15 @@ def status_doc(cfg) -> dict:
         kinds.setdefault(a["batch"], []).append(a["kind"])
     for r in rows:
         r["alerts"] = kinds.get(r["batch"], [])
-    return {"status": rows,
-            "heartbeat": {"last_good_cycle": formats.iso(beat["last_good_cycle_s"]) if beat
-                          else None,
-                          "last_data": formats.iso(beat["last_data_s"]) if beat else None,
-                          "cycles": beat["cycles"] if beat else 0,
-                          "failed_cycles": beat["failed_cycles"] if beat else 0}}
+    return {
+        "status": rows,
+        "heartbeat": {
+            "last_good_cycle": formats.iso(beat["last_good_cycle_s"]) if beat else None,
+            "last_data": formats.iso(beat["last_data_s"]) if beat else None,
+            "cycles": beat["cycles"] if beat else 0,
+            "failed_cycles": beat["failed_cycles"] if beat else 0,
+        },
+    }
 
 
 def cmd_status(args) -> int:
@@ -99,10 +114,12 @@ def _plain_lines(doc: dict, zone: str, now_s: float) -> list[str]:
     lines = [f"{formats.local(now_s, zone)} last good cycle {beat.get('last_good_cycle')}"]
     for r in doc["status"]:
         age = (now_s - datetime.fromisoformat(r["at"]).timestamp()) / 60
-        lines.append(f"{r['unit']} {r['batch']} {r['recipe']} X={r['conversion']:.3f}"
-                     f"±{r['conversion_sd']:.3f} P50={r['predicted_end']} "
-                     f"P10={r['predicted_end_p10']} P90={r['predicted_end_p90']} "
-                     f"alerts={','.join(r['alerts']) or '-'} data_age_min={age:.0f}")
+        lines.append(
+            f"{r['unit']} {r['batch']} {r['recipe']} X={r['conversion']:.3f}"
+            f"±{r['conversion_sd']:.3f} P50={r['predicted_end']} "
+            f"P10={r['predicted_end_p10']} P90={r['predicted_end_p90']} "
+            f"alerts={','.join(r['alerts']) or '-'} data_age_min={age:.0f}"
+        )
     return lines
 
 
@@ -124,8 +141,9 @@ def cmd_watch(args) -> int:
         return 0
     from rich.live import Live
 
-    with Live(status_table(status_doc(cfg), zone, now_s=_time.time()),
-              refresh_per_second=2) as live:
+    with Live(
+        status_table(status_doc(cfg), zone, now_s=_time.time()), refresh_per_second=2
+    ) as live:
         while args.count is None or n < args.count:
             _time.sleep(args.interval)
             live.update(status_table(status_doc(cfg), zone, now_s=_time.time()))
@@ -137,8 +155,10 @@ def cmd_demo(args) -> int:
     from .demo import run_demo
 
     summary = run_demo(args.out, fast=args.fast)
-    print(f"demo done in {summary['wall_s']:.0f} s: {summary['batches']} batches monitored, "
-          f"{summary['estimates']} estimates, {summary['alerts']} alerts stored")
+    print(
+        f"demo done in {summary['wall_s']:.0f} s: {summary['batches']} batches monitored, "
+        f"{summary['estimates']} estimates, {summary['alerts']} alerts stored"
+    )
     return 0
 
 
@@ -149,8 +169,13 @@ class _FitProgress:
         from rich.console import Console
         from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn
 
-        self.bar = Progress(TextColumn("{task.description}"), BarColumn(),
-                            MofNCompleteColumn(), console=Console(stderr=True), transient=True)
+        self.bar = Progress(
+            TextColumn("{task.description}"),
+            BarColumn(),
+            MofNCompleteColumn(),
+            console=Console(stderr=True),
+            transient=True,
+        )
         self._load = self._iter = None
 
     def __enter__(self):
@@ -181,30 +206,44 @@ def _fit_text(doc: dict) -> str:
         return fmt.format(v) + ("" if se is None else " ± " + fmt.format(se))
 
     se = doc["stderr"]
-    law = doc["rate_law"] + (f", order {pm(doc['order'], se['order'], '{:.3f}')}"
-                             if doc["rate_law"] == "power" else "")
+    law = doc["rate_law"] + (
+        f", order {pm(doc['order'], se['order'], '{:.3f}')}" if doc["rate_law"] == "power" else ""
+    )
     if doc["ea_j_per_mol"] is None and doc.get("prior_kinetics"):
-        ea = (f"not identifiable from these data (the file keeps the prior "
-              f"{doc['ea_j_per_mol_written'] / 1e3:.1f} kJ/mol)")
+        ea = (
+            f"not identifiable from these data (the file keeps the prior "
+            f"{doc['ea_j_per_mol_written'] / 1e3:.1f} kJ/mol)"
+        )
     elif doc["ea_j_per_mol"] is None:
         ea = "not identifiable from these data (no prior: k_ref applies at T_ref only)"
     else:
-        ea = pm(doc["ea_j_per_mol"] / 1e3, None if se["ea_j_per_mol"] is None
-                else se["ea_j_per_mol"] / 1e3, "{:.2f}") + " kJ/mol"
+        ea = (
+            pm(
+                doc["ea_j_per_mol"] / 1e3,
+                None if se["ea_j_per_mol"] is None else se["ea_j_per_mol"] / 1e3,
+                "{:.2f}",
+            )
+            + " kJ/mol"
+        )
     act = "-" if doc["activity_sd"] is None else f"{doc['activity_sd']:.3f}"
-    lines = [f"fitted {law}",
-             f"  k_ref        {pm(doc['k_ref'], se['k_ref'])} at T_ref {doc['t_ref_k']:.2f} K",
-             f"  Ea           {ea}",
-             f"  corr(ln k_ref, Ea) {doc['correlation'][0][1]:+.3f}; activity_sd {act}",
-             f"  data         {doc['n_batches']} series, {doc['n_assays']} assays, "
-             f"RMSE {doc['rmse']:.4g}, AIC {doc['aic']:.1f}",
-             "  candidates   " + "; ".join(
-                 f"{c['label']}: " + ("failed" if c["aic"] is None else
-                                      f"AIC {c['aic']:.1f} (Δ {c['delta_aic']:.1f})")
-                 for c in doc["candidates"])]
+    lines = [
+        f"fitted {law}",
+        f"  k_ref        {pm(doc['k_ref'], se['k_ref'])} at T_ref {doc['t_ref_k']:.2f} K",
+        f"  Ea           {ea}",
+        f"  corr(ln k_ref, Ea) {doc['correlation'][0][1]:+.3f}; activity_sd {act}",
+        f"  data         {doc['n_batches']} series, {doc['n_assays']} assays, "
+        f"RMSE {doc['rmse']:.4g}, AIC {doc['aic']:.1f}",
+        "  candidates   "
+        + "; ".join(
+            f"{c['label']}: "
+            + ("failed" if c["aic"] is None else f"AIC {c['aic']:.1f} (Δ {c['delta_aic']:.1f})")
+            for c in doc["candidates"]
+        ),
+    ]
     lines += [f"  warning      {w}" for w in doc["warnings"]]
-    lines.append(f"  wrote        {doc['out']}, {doc['plots']['parity']}, "
-                 f"{doc['plots']['residuals']}")
+    lines.append(
+        f"  wrote        {doc['out']}, {doc['plots']['parity']}, {doc['plots']['residuals']}"
+    )
     return "\n".join(lines)
 
 
@@ -229,14 +268,31 @@ def cmd_fit(args) -> int:
             rc = cfg.recipe(args.recipe) if cfg else None
             if rc is not None and Path(rc.kinetics).exists():
                 prior, prior_path = load_kinetics(rc.kinetics), rc.kinetics
-            doc = fitjob.fit_lab_csv(args.lab_csv, args.out, prior=prior, prior_path=prior_path,
-                                     law=args.law, order=args.order, force=args.force,
-                                     recipe=args.recipe, progress=progress)
+            doc = fitjob.fit_lab_csv(
+                args.lab_csv,
+                args.out,
+                prior=prior,
+                prior_path=prior_path,
+                law=args.law,
+                order=args.order,
+                force=args.force,
+                recipe=args.recipe,
+                progress=progress,
+            )
         else:
             cfg = load_config(args.config)
-            wanted = [b.strip() for b in args.batches.split(",") if b.strip()] \
-                if args.batches else None
-            doc = fitjob.fit_recipe(cfg, args.recipe, args.out, batches=wanted, law=args.law,
-                                    order=args.order, force=args.force, progress=progress)
+            wanted = (
+                [b.strip() for b in args.batches.split(",") if b.strip()] if args.batches else None
+            )
+            doc = fitjob.fit_recipe(
+                cfg,
+                args.recipe,
+                args.out,
+                batches=wanted,
+                law=args.law,
+                order=args.order,
+                force=args.force,
+                progress=progress,
+            )
     _out(args, doc, _fit_text(doc))
     return 0

@@ -188,11 +188,15 @@ class _Section:
             return value
         value = float(value)
         if positive and not value > 0:
-            raise ConfigError(f"expected a positive number, got {value!r}",
-                              path=self.path, key=self._k(name))
+            raise ConfigError(
+                f"expected a positive number, got {value!r}", path=self.path, key=self._k(name)
+            )
         if (low is not None and value < low) or (high is not None and value > high):
-            raise ConfigError(f"expected a number in [{low}, {high}], got {value!r}",
-                              path=self.path, key=self._k(name))
+            raise ConfigError(
+                f"expected a number in [{low}, {high}], got {value!r}",
+                path=self.path,
+                key=self._k(name),
+            )
         return value
 
     def sub(self, name: str, required=False) -> _Section | None:
@@ -218,8 +222,14 @@ def _as_tuple(types) -> tuple:
 
 
 def _type_names(types) -> str:
-    names = {str: "a string", int: "an integer", float: "a number", bool: "true or false",
-             list: "a list", dict: "a table"}
+    names = {
+        str: "a string",
+        int: "an integer",
+        float: "a number",
+        bool: "true or false",
+        list: "a list",
+        dict: "a table",
+    }
     return " or ".join(dict.fromkeys(names.get(t, t.__name__) for t in _as_tuple(types)))
 
 
@@ -249,8 +259,11 @@ def _url(sec: _Section, name: str, base: Path, default: Any = ...) -> str | None
         return None
     url = expand_env(raw, path=sec.path, key=sec._k(name))
     if "://" not in url:
-        raise ConfigError(f"expected an SQLAlchemy URL such as 'sqlite:///plant.db', got {raw!r}",
-                          path=sec.path, key=sec._k(name))
+        raise ConfigError(
+            f"expected an SQLAlchemy URL such as 'sqlite:///plant.db', got {raw!r}",
+            path=sec.path,
+            key=sec._k(name),
+        )
     return _resolve_sqlite(url, base)
 
 
@@ -259,8 +272,11 @@ def _zone(sec: _Section, name: str, default: str) -> str:
     try:
         ZoneInfo(zone)
     except (ZoneInfoNotFoundError, ValueError):
-        raise ConfigError(f"unknown IANA time zone {zone!r} (e.g. 'Europe/Berlin')",
-                          path=sec.path, key=sec._k(name)) from None
+        raise ConfigError(
+            f"unknown IANA time zone {zone!r} (e.g. 'Europe/Berlin')",
+            path=sec.path,
+            key=sec._k(name),
+        ) from None
     return zone
 
 
@@ -275,8 +291,11 @@ def _columns(sec: _Section | None, cls, required: tuple[str, ...], optional: tup
         if values[name] is False or values[name] == "":
             values[name] = None  # the site's export has no such column
         elif values[name] is True:
-            raise ConfigError("expected a column name, or false when there is none",
-                              path=sec.path, key=sec._k(name))
+            raise ConfigError(
+                "expected a column name, or false when there is none",
+                path=sec.path,
+                key=sec._k(name),
+            )
     sec.finish()
     return cls(**values)
 
@@ -284,8 +303,11 @@ def _columns(sec: _Section | None, cls, required: tuple[str, ...], optional: tup
 def _temperature_unit(sec: _Section, name: str, default: str) -> str:
     unit = sec.get(name, str, default)
     if unit not in TEMPERATURE_UNITS:
-        raise ConfigError(f"unknown temperature unit {unit!r}; expected one of "
-                          f"{', '.join(TEMPERATURE_UNITS)}", path=sec.path, key=sec._k(name))
+        raise ConfigError(
+            f"unknown temperature unit {unit!r}; expected one of {', '.join(TEMPERATURE_UNITS)}",
+            path=sec.path,
+            key=sec._k(name),
+        )
     return unit
 
 
@@ -293,13 +315,18 @@ def _historian(sec: _Section, base: Path) -> HistorianConfig:
     h = HistorianConfig(
         url=_url(sec, "url", base),
         samples_table=sec.get("samples_table", str, "tag_samples"),
-        samples_columns=_columns(sec.sub("samples_columns"), SamplesColumns,
-                                 ("tag", "time", "value"), ("seq", "quality")),
+        samples_columns=_columns(
+            sec.sub("samples_columns"), SamplesColumns, ("tag", "time", "value"), ("seq", "quality")
+        ),
         good_quality=tuple(_good_quality(sec)),
         naive_timezone=_zone(sec, "naive_timezone", "UTC"),
         events_table=sec.get("events_table", str, "batch_events"),
-        events_columns=_columns(sec.sub("events_columns"), EventsColumns,
-                                ("batch", "unit", "recipe", "event", "time"), ("seq",)),
+        events_columns=_columns(
+            sec.sub("events_columns"),
+            EventsColumns,
+            ("batch", "unit", "recipe", "event", "time"),
+            ("seq",),
+        ),
         start_event=sec.get("start_event", str, "start"),
         end_event=sec.get("end_event", str, "end"),
         connect_timeout_s=sec.number("connect_timeout_s", 10.0, positive=True),
@@ -318,8 +345,11 @@ def _good_quality(sec: _Section) -> list:
     codes = sec.get("good_quality", list, [0])
     for c in codes:
         if isinstance(c, bool) or not isinstance(c, int | str):
-            raise ConfigError(f"expected a list of integer or string codes, got {c!r}",
-                              path=sec.path, key=sec._k("good_quality"))
+            raise ConfigError(
+                f"expected a list of integer or string codes, got {c!r}",
+                path=sec.path,
+                key=sec._k("good_quality"),
+            )
     return codes
 
 
@@ -328,10 +358,16 @@ def _unit(sec: _Section) -> UnitConfig:
     t_unit = _temperature_unit(sec, "temperature_unit", "degC")
     limits = sec.get("temperature_limits", list, None)
     if limits is not None:
-        if len(limits) != 2 or not all(isinstance(v, int | float) for v in limits) or \
-                not limits[0] < limits[1]:
-            raise ConfigError(f"expected [low, high] in {t_unit}, got {limits!r}",
-                              path=sec.path, key=sec._k("temperature_limits"))
+        if (
+            len(limits) != 2
+            or not all(isinstance(v, int | float) for v in limits)
+            or not limits[0] < limits[1]
+        ):
+            raise ConfigError(
+                f"expected [low, high] in {t_unit}, got {limits!r}",
+                path=sec.path,
+                key=sec._k("temperature_limits"),
+            )
         limits_k = (float(to_kelvin(limits[0], t_unit)), float(to_kelvin(limits[1], t_unit)))
     else:
         limits_k = UnitConfig.__dataclass_fields__["temperature_limits_k"].default
@@ -348,16 +384,20 @@ def _unit(sec: _Section) -> UnitConfig:
 
 
 def _safety(sec: _Section) -> SafetyConfig:
-    q = lambda name, si: parse_quantity(sec.get(name, str), si, path=sec.path,  # noqa: E731
-                                        key=sec._k(name))
+    def q(name: str, si: str) -> float:
+        return parse_quantity(sec.get(name, str), si, path=sec.path, key=sec._k(name))
+
     s = SafetyConfig(
         heat_of_reaction_j_per_mol=q("heat_of_reaction", "J/mol"),
         heat_capacity_j_per_kg_k=q("heat_capacity", "J/(kg*K)"),
         density_kg_per_m3=q("density", "kg/m^3"),
         mtt_k=q("mtt", "K"),
         t_d24_k=q("t_d24", "K"),
-        assessed_class=(int(sec.number("assessed_class", None, low=1, high=5))
-                        if "assessed_class" in sec.data else None),
+        assessed_class=(
+            int(sec.number("assessed_class", None, low=1, high=5))
+            if "assessed_class" in sec.data
+            else None
+        ),
     )
     sec.used.add("assessed_class")
     if s.heat_capacity_j_per_kg_k <= 0 or s.density_kg_per_m3 <= 0:
@@ -370,20 +410,30 @@ def _recipe(name: str, sec: _Section, base: Path) -> RecipeConfig:
     kin = sec.get("kinetics", str)
     kind = sec.get("assay_kind", str, "concentration")
     if kind not in ASSAY_KINDS:
-        raise ConfigError(f"expected one of {', '.join(ASSAY_KINDS)}, got {kind!r}",
-                          path=sec.path, key=sec._k("assay_kind"))
+        raise ConfigError(
+            f"expected one of {', '.join(ASSAY_KINDS)}, got {kind!r}",
+            path=sec.path,
+            key=sec._k("assay_kind"),
+        )
     plan_unit = _temperature_unit(sec, "plan_unit", "degC")
     plan_raw = sec.get("temperature_plan", list, [])
     plan = []
     for point in plan_raw:
-        if not (isinstance(point, list) and len(point) == 2
-                and all(isinstance(v, int | float) and not isinstance(v, bool) for v in point)):
-            raise ConfigError(f"expected [[minutes, setpoint], ...], got {point!r}",
-                              path=sec.path, key=sec._k("temperature_plan"))
+        if not (
+            isinstance(point, list)
+            and len(point) == 2
+            and all(isinstance(v, int | float) and not isinstance(v, bool) for v in point)
+        ):
+            raise ConfigError(
+                f"expected [[minutes, setpoint], ...], got {point!r}",
+                path=sec.path,
+                key=sec._k("temperature_plan"),
+            )
         plan.append((float(point[0]) * 60.0, float(to_kelvin(point[1], plan_unit))))
     if any(b[0] < a[0] for a, b in zip(plan, plan[1:], strict=False)):
-        raise ConfigError("plan times must not decrease", path=sec.path,
-                          key=sec._k("temperature_plan"))
+        raise ConfigError(
+            "plan times must not decrease", path=sec.path, key=sec._k("temperature_plan")
+        )
     safety = sec.sub("safety")
     r = RecipeConfig(
         name=name,
@@ -408,8 +458,9 @@ def load_config(path: str | os.PathLike | None = None) -> Config:
     try:
         text = p.read_text(encoding="utf-8")
     except FileNotFoundError:
-        raise ConfigError("configuration file not found (give --config PATH or set "
-                          f"${ENV_VAR})", path=p) from None
+        raise ConfigError(
+            f"configuration file not found (give --config PATH or set ${ENV_VAR})", path=p
+        ) from None
     except OSError as exc:
         raise ConfigError(f"cannot read configuration: {exc.strerror}", path=p) from None
     try:
@@ -434,8 +485,10 @@ def config_from_dict(data: dict, path: Path | None = None) -> Config:
     poll_sec = root.sub("poll")
     poll = PollConfig()
     if poll_sec:
-        poll = PollConfig(interval_s=poll_sec.number("interval_s", 30.0, positive=True),
-                          misfire_grace_s=poll_sec.number("misfire_grace_s", 60.0, positive=True))
+        poll = PollConfig(
+            interval_s=poll_sec.number("interval_s", 30.0, positive=True),
+            misfire_grace_s=poll_sec.number("misfire_grace_s", 60.0, positive=True),
+        )
         poll_sec.finish()
 
     est_sec = root.sub("estimator")
@@ -460,15 +513,18 @@ def config_from_dict(data: dict, path: Path | None = None) -> Config:
             tag_prefix=wb_sec.get("tag_prefix", str, "CONVMON"),
         )
         if wb.enabled and not wb.url:
-            raise ConfigError("write-back is enabled but has no url", path=path,
-                              key="writeback.url")
+            raise ConfigError(
+                "write-back is enabled but has no url", path=path, key="writeback.url"
+            )
         wb_sec.finish()
 
     site_sec = root.sub("site")
     site = SiteConfig(timezone=hist.naive_timezone)
     if site_sec:
-        site = SiteConfig(name=site_sec.get("name", str, ""),
-                          timezone=_zone(site_sec, "timezone", hist.naive_timezone))
+        site = SiteConfig(
+            name=site_sec.get("name", str, ""),
+            timezone=_zone(site_sec, "timezone", hist.naive_timezone),
+        )
         site_sec.finish()
 
     root.used.add("units")
@@ -487,5 +543,14 @@ def config_from_dict(data: dict, path: Path | None = None) -> Config:
             recipes[name] = _recipe(name, recipes_sec.sub(name), base)
         recipes_sec.finish()
     root.finish()
-    return Config(path=path, historian=hist, store=store, units=units, recipes=recipes,
-                  poll=poll, estimator=est, writeback=wb, site=site)
+    return Config(
+        path=path,
+        historian=hist,
+        store=store,
+        units=units,
+        recipes=recipes,
+        poll=poll,
+        estimator=est,
+        writeback=wb,
+        site=site,
+    )

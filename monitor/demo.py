@@ -39,8 +39,9 @@ def _config(out: Path, live_db: Path, kinetics: dict[str, Path]):
 
 
 def _copy_schema(src: sqlite3.Connection, dst: sqlite3.Connection) -> None:
-    for (sql,) in src.execute("SELECT sql FROM sqlite_master WHERE sql IS NOT NULL "
-                              "AND type IN ('table', 'index')"):
+    for (sql,) in src.execute(
+        "SELECT sql FROM sqlite_master WHERE sql IS NOT NULL AND type IN ('table', 'index')"
+    ):
         dst.execute(sql)
     dst.commit()
 
@@ -62,8 +63,9 @@ class Replay:
         """The last seq that has arrived by ``clock_iso``: that of the newest temperature row."""
         cut = -1
         for tag in self.tags:
-            row = self.src.execute("SELECT MAX(seq) FROM tag_samples WHERE tag = ? AND ts <= ?",
-                                   (tag, clock_iso)).fetchone()
+            row = self.src.execute(
+                "SELECT MAX(seq) FROM tag_samples WHERE tag = ? AND ts <= ?", (tag, clock_iso)
+            ).fetchone()
             if row[0] is not None:
                 cut = max(cut, row[0])
         return cut
@@ -71,12 +73,17 @@ class Replay:
     def advance_to(self, clock_s: float) -> int:
         iso = to_datetime(clock_s).isoformat(timespec="milliseconds")
         cut = self._cut(iso)
-        rows = self.src.execute("SELECT seq, tag, ts, value, quality FROM tag_samples WHERE "
-                                "seq > ? AND seq <= ? ORDER BY seq", (self.seq, cut)).fetchall()
+        rows = self.src.execute(
+            "SELECT seq, tag, ts, value, quality FROM tag_samples WHERE "
+            "seq > ? AND seq <= ? ORDER BY seq",
+            (self.seq, cut),
+        ).fetchall()
         self.dst.executemany("INSERT INTO tag_samples VALUES (?, ?, ?, ?, ?)", rows)
-        ev = self.src.execute("SELECT seq, batch_id, unit, recipe, event, ts FROM batch_events "
-                              "WHERE seq > ? AND ts <= ? ORDER BY seq",
-                              (self.event_seq, iso)).fetchall()
+        ev = self.src.execute(
+            "SELECT seq, batch_id, unit, recipe, event, ts FROM batch_events "
+            "WHERE seq > ? AND ts <= ? ORDER BY seq",
+            (self.event_seq, iso),
+        ).fetchall()
         self.dst.executemany("INSERT INTO batch_events VALUES (?, ?, ?, ?, ?, ?)", ev)
         self.dst.commit()
         self.seq = max(self.seq, cut)
@@ -105,8 +112,11 @@ def _fit_kinetics(out: Path, cfg_hist, before_s: float, log) -> dict[str, Path]:
     finally:
         reader.close()
     for recipe in cfg_hist.recipes:
-        ids = [b.batch for b in batches if b.recipe == recipe and b.end_s is not None
-               and b.end_s < before_s]
+        ids = [
+            b.batch
+            for b in batches
+            if b.recipe == recipe and b.end_s is not None and b.end_s < before_s
+        ]
         path = out / "kinetics" / f"{recipe.lower()}.toml"
         t0 = time.perf_counter()
         try:
@@ -116,10 +126,12 @@ def _fit_kinetics(out: Path, cfg_hist, before_s: float, log) -> dict[str, Path]:
             continue
         found[recipe] = path
         se = res.get("stderr", {})
-        log(f"  {recipe}: {res['rate_law']} order {res['order']:.2f}, "
+        log(
+            f"  {recipe}: {res['rate_law']} order {res['order']:.2f}, "
             f"Ea {res['ea_j_per_mol'] / 1e3:.1f} ± {(se.get('ea_j_per_mol') or 0) / 1e3:.1f} "
             f"kJ/mol, k_ref {res['k_ref']:.3g} at {res['t_ref_k']:.1f} K, from {len(ids)} "
-            f"batches in {time.perf_counter() - t0:.1f} s -> {path}")
+            f"batches in {time.perf_counter() - t0:.1f} s -> {path}"
+        )
     return found
 
 
@@ -136,8 +148,10 @@ def run_demo(out_dir: str | Path = "var/demo", *, fast: bool = False, stream=Non
     log = console.print
     out = Path(out_dir).resolve()
     out.mkdir(parents=True, exist_ok=True)
-    log("[bold]convmon demo[/bold] - invented sample plant (advisory only: not a control or "
-        "safety system)")
+    log(
+        "[bold]convmon demo[/bold] - invented sample plant (advisory only: not a control or "
+        "safety system)"
+    )
     if not SAMPLE_DB.exists():
         from sample_historian.generate import generate
 
@@ -173,10 +187,13 @@ def run_demo(out_dir: str | Path = "var/demo", *, fast: bool = False, stream=Non
             doc = status_doc(cfg)
             for r in doc["status"]:
                 history.setdefault(r["batch"], []).append(
-                    (r["at"], r["predicted_end"], r["predicted_end_p10"], r["predicted_end_p90"]))
+                    (r["at"], r["predicted_end"], r["predicted_end_p10"], r["predicted_end_p90"])
+                )
             table = status_table(doc, cfg.site.timezone, now_s=clock["t"])
-            table.title = (f"plant time {to_datetime(clock['t']):%Y-%m-%d %H:%M} UTC - poll "
-                           f"{i}/{ticks}" + (f", {rep.rows_read} rows" if rep else ", failed"))
+            table.title = (
+                f"plant time {to_datetime(clock['t']):%Y-%m-%d %H:%M} UTC - poll "
+                f"{i}/{ticks}" + (f", {rep.rows_read} rows" if rep else ", failed")
+            )
             live.update(table)
             time.sleep(max(0.0, pace_s - (time.perf_counter() - tick_start)))
     replay.close()
@@ -185,8 +202,10 @@ def run_demo(out_dir: str | Path = "var/demo", *, fast: bool = False, stream=Non
     log("3. how the forecasts converged (P50 and the P10-P90 width, first and last poll):")
     for line in summary["lines"]:
         log("   " + line)
-    log(f"4. written: store {out / 'convmon.db'}, live historian {live_db}"
-        + (f", kinetics {', '.join(str(p) for p in kinetics.values())}" if kinetics else ""))
+    log(
+        f"4. written: store {out / 'convmon.db'}, live historian {live_db}"
+        + (f", kinetics {', '.join(str(p) for p in kinetics.values())}" if kinetics else "")
+    )
     log("   next: convmon status --config <your plant.toml>; see README.md")
     return summary
 
@@ -215,10 +234,17 @@ def _summary(monitor, history, out, kinetics, wall) -> dict:
             continue
         (_, e0, lo0, hi0), (_, e1, lo1, hi1) = pts[0], pts[-1]
         ts = lambda x: datetime.fromisoformat(x).timestamp()  # noqa: E731
-        lines.append(f"{bid}: P50 {to_datetime(ts(e0)):%H:%M} -> {to_datetime(ts(e1)):%H:%M} "
-                     f"UTC over {len(pts)} polls; band {(ts(hi0) - ts(lo0)) / 60:.0f} -> "
-                     f"{(ts(hi1) - ts(lo1)) / 60:.0f} min")
+        lines.append(
+            f"{bid}: P50 {to_datetime(ts(e0)):%H:%M} -> {to_datetime(ts(e1)):%H:%M} "
+            f"UTC over {len(pts)} polls; band {(ts(hi0) - ts(lo0)) / 60:.0f} -> "
+            f"{(ts(hi1) - ts(lo1)) / 60:.0f} min"
+        )
     shutil.copyfile(out / "convmon.db", out / "convmon-final.db")
-    return {"lines": lines, "estimates": len(snap["estimates"]), "alerts": len(snap["alerts"]),
-            "batches": len(snap["batches"]), "wall_s": wall,
-            "kinetics": {k: str(v) for k, v in kinetics.items()}}
+    return {
+        "lines": lines,
+        "estimates": len(snap["estimates"]),
+        "alerts": len(snap["alerts"]),
+        "batches": len(snap["batches"]),
+        "wall_s": wall,
+        "kinetics": {k: str(v) for k, v in kinetics.items()},
+    }

@@ -26,11 +26,15 @@ from .physics.fitting import FitSeries, PlantFit, excluded_mask, fit_batches
 from .physics.lab_kinetics import fit_arrhenius, fit_differential, fit_integral
 from .units import to_kelvin
 
-FIT_METHOD = ("weighted nonlinear least squares (scipy.optimize.least_squares, trf, analytic "
-              "Jacobian) on the assays, each batch integrated along its own temperature trace "
-              "by the reference-equivalent time; per-batch activity with a shrinkage prior")
-LAB_METHOD = ("nonlinear least squares on the integrated rate law of each isothermal run, all "
-              "runs at once (unweighted unless the CSV gives sd)")
+FIT_METHOD = (
+    "weighted nonlinear least squares (scipy.optimize.least_squares, trf, analytic "
+    "Jacobian) on the assays, each batch integrated along its own temperature trace "
+    "by the reference-equivalent time; per-batch activity with a shrinkage prior"
+)
+LAB_METHOD = (
+    "nonlinear least squares on the integrated rate law of each isothermal run, all "
+    "runs at once (unweighted unless the CSV gives sd)"
+)
 
 
 # ----------------------------------------------------------------------------- files
@@ -50,15 +54,20 @@ def _check_out(out: str | Path, force: bool) -> Path:
     """Refuse an existing output before any work is done (never overwrite silently)."""
     p = Path(out)
     if p.exists() and not force:
-        raise KineticsError(f"file exists; write the new version as {next_free_name(p)} or pass "
-                            "--force to replace it", path=p)
+        raise KineticsError(
+            f"file exists; write the new version as {next_free_name(p)} or pass "
+            "--force to replace it",
+            path=p,
+        )
     return p
 
 
 def plot_paths(out: str | Path) -> dict[str, Path]:
     p = Path(out)
-    return {"parity": p.with_name(f"{p.stem}_parity.png"),
-            "residuals": p.with_name(f"{p.stem}_residuals.png")}
+    return {
+        "parity": p.with_name(f"{p.stem}_parity.png"),
+        "residuals": p.with_name(f"{p.stem}_residuals.png"),
+    }
 
 
 # ----------------------------------------------------------------------------- plant
@@ -72,8 +81,9 @@ def _select_batches(reader, recipe: str, wanted: list[str] | None):
             raise UsageError(f"--batches: not batches of recipe {recipe}: {', '.join(missing)}")
         running = [w for w in wanted if by_id[w].end_s is None]
         if running:
-            raise UsageError(f"--batches: still running (only complete batches are fitted): "
-                             f"{', '.join(running)}")
+            raise UsageError(
+                f"--batches: still running (only complete batches are fitted): {', '.join(running)}"
+            )
         return [by_id[w] for w in wanted], warnings
     chosen = [b for b in found if b.end_s is not None]
     if not chosen:
@@ -81,15 +91,19 @@ def _select_batches(reader, recipe: str, wanted: list[str] | None):
     return chosen, warnings
 
 
-def load_series(cfg: Config, recipe: str, batches: list[str] | None = None,
-                progress=None) -> tuple[list[FitSeries], list[str]]:
+def load_series(
+    cfg: Config, recipe: str, batches: list[str] | None = None, progress=None
+) -> tuple[list[FitSeries], list[str]]:
     """The recipe's complete batches (or ``batches``) as fit series, and load warnings."""
     from .api import open_reader
 
     rc = cfg.recipe(recipe)
     if rc is None:
-        raise ConfigError(f"recipe {recipe!r} has no [recipes.{recipe}] table", path=cfg.path,
-                          key=f"recipes.{recipe}")
+        raise ConfigError(
+            f"recipe {recipe!r} has no [recipes.{recipe}] table",
+            path=cfg.path,
+            key=f"recipes.{recipe}",
+        )
     reader = open_reader(cfg)
     series, excluded = [], {}
     try:
@@ -99,25 +113,45 @@ def load_series(cfg: Config, recipe: str, batches: list[str] | None = None,
             if progress is not None:
                 progress.loading(i + 1, len(chosen), b.batch)
             for row in data.quality.as_rows():
-                excluded[(row["tag"], row["reason"])] = excluded.get(
-                    (row["tag"], row["reason"]), 0) + row["count"]
-            c_a0 = data.charge if data.charge is not None and data.charge > 0 else \
-                rc.initial_concentration
+                excluded[(row["tag"], row["reason"])] = (
+                    excluded.get((row["tag"], row["reason"]), 0) + row["count"]
+                )
+            c_a0 = (
+                data.charge
+                if data.charge is not None and data.charge > 0
+                else rc.initial_concentration
+            )
             if c_a0 is None:
-                raise DataQualityError(f"batch {b.batch}: no charge sample and no "
-                                       f"recipes.{recipe}.initial_concentration")
+                raise DataQualityError(
+                    f"batch {b.batch}: no charge sample and no "
+                    f"recipes.{recipe}.initial_concentration"
+                )
             if len(data.temperature) < 2 or not len(data.assays):
-                warnings.append(f"{b.batch}: {len(data.temperature)} temperature samples and "
-                                f"{len(data.assays)} assays; left out")
+                warnings.append(
+                    f"{b.batch}: {len(data.temperature)} temperature samples and "
+                    f"{len(data.assays)} assays; left out"
+                )
                 continue
-            series.append(FitSeries(b.batch, data.temperature.t_s, data.temperature.value,
-                                    float(c_a0), data.assays.t_s, data.assays.value,
-                                    rc.assay_kind, rc.assay_sd, start_s=b.start_s))
+            series.append(
+                FitSeries(
+                    b.batch,
+                    data.temperature.t_s,
+                    data.temperature.value,
+                    float(c_a0),
+                    data.assays.t_s,
+                    data.assays.value,
+                    rc.assay_kind,
+                    rc.assay_sd,
+                    start_s=b.start_s,
+                )
+            )
     finally:
         reader.close()
     if excluded:
-        warnings.append("excluded samples: " + ", ".join(
-            f"{t} {r} ×{n}" for (t, r), n in sorted(excluded.items())))
+        warnings.append(
+            "excluded samples: "
+            + ", ".join(f"{t} {r} ×{n}" for (t, r), n in sorted(excluded.items()))
+        )
     return series, warnings
 
 
@@ -132,15 +166,20 @@ def _law_params(law: str, prior: Kinetics | None, *, where) -> dict:
     params = {"epsilon": prior.epsilon if prior is not None else 0.0}
     if law == "bimolecular":
         if not same or prior.theta_b is None:
-            raise ConfigError("the bimolecular law needs theta_b (and b) from the recipe's "
-                              "current kinetics file", path=where, key="theta_b")
+            raise ConfigError(
+                "the bimolecular law needs theta_b (and b) from the recipe's current kinetics file",
+                path=where,
+                key="theta_b",
+            )
         params.update(theta_b=prior.theta_b, b=prior.b)
     elif law == "autocatalytic":
         theta_r = prior.theta_r if same and prior.theta_r > 0 else 0.01
         params.update(theta_r=theta_r)
     elif law == "reversible":
-        raise UsageError("--law reversible: the reversible law is not separable and cannot be "
-                         "fitted by this command yet (fit power, bimolecular or autocatalytic)")
+        raise UsageError(
+            "--law reversible: the reversible law is not separable and cannot be "
+            "fitted by this command yet (fit power, bimolecular or autocatalytic)"
+        )
     return params
 
 
@@ -168,13 +207,15 @@ def _candidates(prior: Kinetics | None) -> list[tuple[str, float | str]]:
     return out
 
 
-def _run_fits(series, law, order, prior, *, where, per_batch_activity, sd_known, outlier_sigma,
-              progress) -> tuple[PlantFit, list[dict]]:
+def _run_fits(
+    series, law, order, prior, *, where, per_batch_activity, sd_known, outlier_sigma, progress
+) -> tuple[PlantFit, list[dict]]:
     """The chosen fit, then every candidate law on the same assays (for AIC/BIC).
 
     Candidates are fitted at the activity spread the chosen fit found (no EM of their
     own), so their AIC/BIC compare the laws on equal terms and cost one fit each.
     """
+
     def on_iteration(n):
         if progress is not None:
             progress.iteration(n)
@@ -183,14 +224,22 @@ def _run_fits(series, law, order, prior, *, where, per_batch_activity, sd_known,
         params = _law_params(law_, prior, where=where)
         ea_prior = prior.ea_j_per_mol if prior is not None else None
         order_prior = prior.order if prior is not None and prior.rate_law == "power" else None
-        return fit_batches(series, law_, order_, law_params=params,
-                           per_batch_activity=per_batch_activity, ea_prior_j_per_mol=ea_prior,
-                           order_prior=order_prior,
-                           activity_sd_start=tau or (prior.activity_sd if prior else 0.05),
-                           fit_activity_sd=tau is None,
-                           free_law_params=("theta_r",) if law_ == "autocatalytic" else (),
-                           outlier_sigma=outliers, exclude=exclude, sd_known=sd_known,
-                           on_iteration=on_iteration)
+        return fit_batches(
+            series,
+            law_,
+            order_,
+            law_params=params,
+            per_batch_activity=per_batch_activity,
+            ea_prior_j_per_mol=ea_prior,
+            order_prior=order_prior,
+            activity_sd_start=tau or (prior.activity_sd if prior else 0.05),
+            fit_activity_sd=tau is None,
+            free_law_params=("theta_r",) if law_ == "autocatalytic" else (),
+            outlier_sigma=outliers,
+            exclude=exclude,
+            sd_known=sd_known,
+            on_iteration=on_iteration,
+        )
 
     if progress is not None:
         progress.stage(f"fitting {law}" + (f", order {order}" if law == "power" else ""))
@@ -210,15 +259,34 @@ def _run_fits(series, law, order, prior, *, where, per_batch_activity, sd_known,
             try:
                 fit = one(law_c, order_c, exclude=mask, outliers=None, tau=main.activity_sd)
             except (ValueError, ConfigError) as exc:
-                cands.append({"rate_law": law_c, "order": order_c, "label": label,
-                              "aic": None, "bic": None, "rmse": None, "n_params": None,
-                              "chosen": False, "note": str(exc)})
+                cands.append(
+                    {
+                        "rate_law": law_c,
+                        "order": order_c,
+                        "label": label,
+                        "aic": None,
+                        "bic": None,
+                        "rmse": None,
+                        "n_params": None,
+                        "chosen": False,
+                        "note": str(exc),
+                    }
+                )
                 continue
-        cands.append({"rate_law": law_c, "order": fit.order if order_c == "free" else order_c,
-                      "order_free": order_c == "free", "label": label, "aic": fit.aic,
-                      "bic": fit.bic, "rmse": fit.rmse, "n_params": fit.n_params,
-                      "chosen": fit is main, "note": "; ".join(
-                          w for w in fit.warnings if "identified" in w)})
+        cands.append(
+            {
+                "rate_law": law_c,
+                "order": fit.order if order_c == "free" else order_c,
+                "order_free": order_c == "free",
+                "label": label,
+                "aic": fit.aic,
+                "bic": fit.bic,
+                "rmse": fit.rmse,
+                "n_params": fit.n_params,
+                "chosen": fit is main,
+                "note": "; ".join(w for w in fit.warnings if "identified" in w),
+            }
+        )
     best = min((c for c in cands if c["aic"] is not None), key=lambda c: c["aic"], default=None)
     for c in cands:
         c["delta_aic"] = None if c["aic"] is None or best is None else c["aic"] - best["aic"]
@@ -234,16 +302,24 @@ def _kinetics(fit: PlantFit, prior: Kinetics | None, provenance: dict) -> Kineti
         se_ea = prior.stderr_ea_j_per_mol if prior is not None else 0.0
     lp = fit.law_params
     return Kinetics(
-        rate_law=fit.rate_law, k_ref=fit.k_ref, t_ref_k=fit.t_ref_k, ea_j_per_mol=float(ea),
+        rate_law=fit.rate_law,
+        k_ref=fit.k_ref,
+        t_ref_k=fit.t_ref_k,
+        ea_j_per_mol=float(ea),
         order=fit.order,
-        activity_sd=fit.activity_sd if fit.activity_sd is not None else
-        (prior.activity_sd if prior else 0.05),
-        theta_b=lp.get("theta_b"), b=lp.get("b", 1.0), theta_r=lp.get("theta_r", 0.0),
+        activity_sd=fit.activity_sd
+        if fit.activity_sd is not None
+        else (prior.activity_sd if prior else 0.05),
+        theta_b=lp.get("theta_b"),
+        b=lp.get("b", 1.0),
+        theta_r=lp.get("theta_r", 0.0),
         epsilon=lp.get("epsilon", 0.0),
-        stderr_k_ref=se["k_ref"] or 0.0, stderr_ea_j_per_mol=se_ea or 0.0,
+        stderr_k_ref=se["k_ref"] or 0.0,
+        stderr_ea_j_per_mol=se_ea or 0.0,
         stderr_order=se["order"] or 0.0,
         correlation=tuple(tuple(float(v) for v in row) for row in fit.correlation),
-        provenance=provenance)
+        provenance=provenance,
+    )
 
 
 def _toml_safe(x):
@@ -259,80 +335,155 @@ def _toml_safe(x):
     return x
 
 
-def _document(fit: PlantFit, cands: list[dict], kin: Kinetics, out: Path, plots: dict,
-              warnings: list[str], extra: dict) -> dict:
+def _document(
+    fit: PlantFit,
+    cands: list[dict],
+    kin: Kinetics,
+    out: Path,
+    plots: dict,
+    warnings: list[str],
+    extra: dict,
+) -> dict:
     se = fit.stderr
     ea_known = "ea_j_per_mol" not in fit.fixed
     by_batch = []
     for r in fit.residuals:
         used = r["used"]
         res = r["residual"][used]
-        by_batch.append({
-            "batch": r["name"], "n_assays": int(used.sum()),
-            "activity": fit.activity.get(r["name"]),
-            "rmse": float(np.sqrt(np.mean(res ** 2))) if len(res) else None,
-            "max_abs_sigma": float(np.max(np.abs(r["sigma"][used]))) if len(res) else None,
-            "residuals": [float(v) for v in r["residual"]],
-            "t_s": [float(v) for v in r["t_s"]], "used": [bool(v) for v in used]})
+        by_batch.append(
+            {
+                "batch": r["name"],
+                "n_assays": int(used.sum()),
+                "activity": fit.activity.get(r["name"]),
+                "rmse": float(np.sqrt(np.mean(res**2))) if len(res) else None,
+                "max_abs_sigma": float(np.max(np.abs(r["sigma"][used]))) if len(res) else None,
+                "residuals": [float(v) for v in r["residual"]],
+                "t_s": [float(v) for v in r["t_s"]],
+                "used": [bool(v) for v in used],
+            }
+        )
     doc = {
-        "rate_law": fit.rate_law, "order": fit.order, "k_ref": fit.k_ref,
-        "t_ref_k": fit.t_ref_k, "ea_j_per_mol": fit.ea_j_per_mol if ea_known else None,
-        "stderr": {"k_ref": se["k_ref"], "ea_j_per_mol": se["ea_j_per_mol"],
-                   "order": se["order"]},
-        "activity_sd": fit.activity_sd, "n_batches": fit.n_series, "n_assays": fit.n_assays,
-        "rmse": fit.rmse, "aic": fit.aic, "candidates": cands,
-        "bic": fit.bic, "reduced_chi2": fit.s2, "dof": fit.dof,
+        "rate_law": fit.rate_law,
+        "order": fit.order,
+        "k_ref": fit.k_ref,
+        "t_ref_k": fit.t_ref_k,
+        "ea_j_per_mol": fit.ea_j_per_mol if ea_known else None,
+        "stderr": {"k_ref": se["k_ref"], "ea_j_per_mol": se["ea_j_per_mol"], "order": se["order"]},
+        "activity_sd": fit.activity_sd,
+        "n_batches": fit.n_series,
+        "n_assays": fit.n_assays,
+        "rmse": fit.rmse,
+        "aic": fit.aic,
+        "candidates": cands,
+        "bic": fit.bic,
+        "reduced_chi2": fit.s2,
+        "dof": fit.dof,
         "ci95": {k: list(v) for k, v in fit.ci95.items() if v is not None},
         "correlation": [[float(v) for v in row] for row in fit.correlation],
         "correlation_params": ["ln_k_ref", "ea_j_per_mol", "order"],
-        "fixed": fit.fixed, "law_params": fit.law_params, "t_ref_choice": fit.t_ref_note,
+        "fixed": fit.fixed,
+        "law_params": fit.law_params,
+        "t_ref_choice": fit.t_ref_note,
         "ea_j_per_mol_written": kin.ea_j_per_mol,
-        "warnings": warnings, "excluded_assays": [
-            {"batch": b, "t_s": t, "value": v, "sigma": s} for b, t, v, s in fit.excluded],
-        "residuals_by_batch": by_batch, "out": str(out),
+        "warnings": warnings,
+        "excluded_assays": [
+            {"batch": b, "t_s": t, "value": v, "sigma": s} for b, t, v, s in fit.excluded
+        ],
+        "residuals_by_batch": by_batch,
+        "out": str(out),
         "plots": {k: str(v) for k, v in plots.items()},
-        "iterations": fit.njev, "evaluations": fit.nfev,
+        "iterations": fit.njev,
+        "evaluations": fit.nfev,
     }
     doc.update(extra)
     return doc
 
 
-def _provenance(fit: PlantFit, cands, warnings, source: dict, fitted_at: str,
-                prior_path, method: str) -> dict:
-    return _toml_safe({
-        **source, "method": method, "fitted_at": fitted_at, "software": f"convmon {__version__}",
-        "n_batches": fit.n_series, "n_assays": fit.n_assays, "rmse": fit.rmse, "aic": fit.aic,
-        "bic": fit.bic, "reduced_chi2": fit.s2, "dof": fit.dof,
-        "t_ref_choice": fit.t_ref_note,
-        "correlation_ln_k_ref_ea": fit.correlation_ln_k_ea,
-        "prior_kinetics": str(prior_path) if prior_path else None,
-        "fixed": {k: (f"{v}: kept at the prior kinetics' value" if v == "unidentifiable" else v)
-                  for k, v in fit.fixed.items()} or None,
-        "excluded_assays": [f"{b} at {t / 60:.0f} min: {v:g} ({s:+.1f} sigma)"
-                            for b, t, v, s in fit.excluded],
-        "warnings": warnings,
-        "candidates": [{k: c[k] for k in ("label", "aic", "bic", "rmse") if c[k] is not None}
-                       for c in cands],
-    })
+def _provenance(
+    fit: PlantFit, cands, warnings, source: dict, fitted_at: str, prior_path, method: str
+) -> dict:
+    return _toml_safe(
+        {
+            **source,
+            "method": method,
+            "fitted_at": fitted_at,
+            "software": f"convmon {__version__}",
+            "n_batches": fit.n_series,
+            "n_assays": fit.n_assays,
+            "rmse": fit.rmse,
+            "aic": fit.aic,
+            "bic": fit.bic,
+            "reduced_chi2": fit.s2,
+            "dof": fit.dof,
+            "t_ref_choice": fit.t_ref_note,
+            "correlation_ln_k_ref_ea": fit.correlation_ln_k_ea,
+            "prior_kinetics": str(prior_path) if prior_path else None,
+            "fixed": {
+                k: (f"{v}: kept at the prior kinetics' value" if v == "unidentifiable" else v)
+                for k, v in fit.fixed.items()
+            }
+            or None,
+            "excluded_assays": [
+                f"{b} at {t / 60:.0f} min: {v:g} ({s:+.1f} sigma)" for b, t, v, s in fit.excluded
+            ],
+            "warnings": warnings,
+            "candidates": [
+                {k: c[k] for k in ("label", "aic", "bic", "rmse") if c[k] is not None}
+                for c in cands
+            ],
+        }
+    )
 
 
-def _finish(fit, cands, prior, prior_path, out: Path, force: bool, warnings, source: dict,
-            method: str, clock, extra: dict | None = None) -> dict:
-    fitted_at = (clock() if clock else datetime.now(UTC)).astimezone(UTC).isoformat(
-        timespec="seconds")
+def _finish(
+    fit,
+    cands,
+    prior,
+    prior_path,
+    out: Path,
+    force: bool,
+    warnings,
+    source: dict,
+    method: str,
+    clock,
+    extra: dict | None = None,
+) -> dict:
+    fitted_at = (
+        (clock() if clock else datetime.now(UTC)).astimezone(UTC).isoformat(timespec="seconds")
+    )
     warnings = list(warnings) + list(fit.warnings)
     prov = _provenance(fit, cands, warnings, source, fitted_at, prior_path, method)
     kin = _kinetics(fit, prior, prov)
     write_kinetics(kin, out, force=force)
     plots = write_plots(fit, out)
-    return _document(fit, cands, kin, out, plots, warnings,
-                     {"fitted_at": fitted_at, **source, **(extra or {}),
-                      "prior_kinetics": str(prior_path) if prior_path else None})
+    return _document(
+        fit,
+        cands,
+        kin,
+        out,
+        plots,
+        warnings,
+        {
+            "fitted_at": fitted_at,
+            **source,
+            **(extra or {}),
+            "prior_kinetics": str(prior_path) if prior_path else None,
+        },
+    )
 
 
-def fit_recipe(cfg: Config, recipe: str, out: str | Path, *, batches: list[str] | None = None,
-               law: str | None = None, order=None, force: bool = False, progress=None,
-               clock: Callable[[], datetime] | None = None) -> dict:
+def fit_recipe(
+    cfg: Config,
+    recipe: str,
+    out: str | Path,
+    *,
+    batches: list[str] | None = None,
+    law: str | None = None,
+    order=None,
+    force: bool = False,
+    progress=None,
+    clock: Callable[[], datetime] | None = None,
+) -> dict:
     """Fit the recipe's kinetics from its complete batches; write ``out`` and the plots.
 
     ``law`` defaults to the recipe's current law, ``order`` (a number or ``"free"``)
@@ -342,20 +493,41 @@ def fit_recipe(cfg: Config, recipe: str, out: str | Path, *, batches: list[str] 
     out = _check_out(out, force)
     rc = cfg.recipe(recipe)
     if rc is None:
-        raise ConfigError(f"recipe {recipe!r} has no [recipes.{recipe}] table", path=cfg.path,
-                          key=f"recipes.{recipe}")
+        raise ConfigError(
+            f"recipe {recipe!r} has no [recipes.{recipe}] table",
+            path=cfg.path,
+            key=f"recipes.{recipe}",
+        )
     prior = _prior(rc.kinetics)
     law, order = _law_and_order(law, order, prior, rc.kinetics)
     _law_params(law, prior, where=rc.kinetics)  # refuse a law it cannot fit before loading
     series, warnings = load_series(cfg, recipe, batches, progress)
     if not series:
         raise DataQualityError(f"recipe {recipe}: no batch with temperatures and assays")
-    fit, cands = _run_fits(series, law, order, prior, where=rc.kinetics,
-                           per_batch_activity=True, sd_known=True, outlier_sigma=4.0,
-                           progress=progress)
+    fit, cands = _run_fits(
+        series,
+        law,
+        order,
+        prior,
+        where=rc.kinetics,
+        per_batch_activity=True,
+        sd_known=True,
+        outlier_sigma=4.0,
+        progress=progress,
+    )
     source = {"recipe": recipe, "batches": [s.name for s in series]}
-    return _finish(fit, cands, prior, rc.kinetics if prior else None, out, force, warnings,
-                   source, FIT_METHOD, clock)
+    return _finish(
+        fit,
+        cands,
+        prior,
+        rc.kinetics if prior else None,
+        out,
+        force,
+        warnings,
+        source,
+        FIT_METHOD,
+        clock,
+    )
 
 
 def _law_and_order(law, order, prior, where):
@@ -388,8 +560,11 @@ def read_lab_csv(path: str | Path) -> tuple[list[FitSeries], bool]:
     """
     p = Path(path)
     try:
-        lines = [ln for ln in p.read_text(encoding="utf-8").splitlines()
-                 if ln.strip() and not ln.lstrip().startswith("#")]
+        lines = [
+            ln
+            for ln in p.read_text(encoding="utf-8").splitlines()
+            if ln.strip() and not ln.lstrip().startswith("#")
+        ]
     except FileNotFoundError:
         raise UsageError(f"{p}: lab CSV not found") from None
     rows = list(csv.DictReader(lines))
@@ -399,8 +574,10 @@ def read_lab_csv(path: str | Path) -> tuple[list[FitSeries], bool]:
     tcol = next((c for c in _TIME if c in cols), None)
     Tcol = next((c for c in _TEMP if c in cols), None)
     if tcol is None or Tcol is None or "c_a" not in cols:
-        raise UsageError(f"{p}: expected columns time_s|time_min|time_h, T_K|T_degC|T_degF and "
-                         f"c_a; found {', '.join(sorted(cols))}")
+        raise UsageError(
+            f"{p}: expected columns time_s|time_min|time_h, T_K|T_degC|T_degF and "
+            f"c_a; found {', '.join(sorted(cols))}"
+        )
     groups: dict[str, list] = {}
     for i, r in enumerate(rows, start=2):
         try:
@@ -429,19 +606,40 @@ def read_lab_csv(path: str | Path) -> tuple[list[FitSeries], bool]:
             assays = ~at0
         T_run = float(np.mean(a[:, 1]))
         if np.ptp(a[:, 1]) > 0.5:
-            raise UsageError(f"{p}: run {key}: temperature varies by {np.ptp(a[:, 1]):.1f} K; "
-                             "a lab run must be isothermal (give each temperature its own run)")
+            raise UsageError(
+                f"{p}: run {key}: temperature varies by {np.ptp(a[:, 1]):.1f} K; "
+                "a lab run must be isothermal (give each temperature its own run)"
+            )
         t_end = max(float(a[:, 0].max()), 1.0)
-        series.append(FitSeries(key, np.array([0.0, t_end]), np.array([T_run, T_run]), c0,
-                                a[assays, 0], a[assays, 2], "concentration", sds[assays],
-                                start_s=0.0))
+        series.append(
+            FitSeries(
+                key,
+                np.array([0.0, t_end]),
+                np.array([T_run, T_run]),
+                c0,
+                a[assays, 0],
+                a[assays, 2],
+                "concentration",
+                sds[assays],
+                start_s=0.0,
+            )
+        )
     return series, "sd" in cols
 
 
-def fit_lab_csv(path: str | Path, out: str | Path, *, prior: Kinetics | None = None,
-                prior_path: Path | None = None, law: str | None = None, order=None,
-                force: bool = False, recipe: str | None = None, progress=None,
-                clock: Callable[[], datetime] | None = None) -> dict:
+def fit_lab_csv(
+    path: str | Path,
+    out: str | Path,
+    *,
+    prior: Kinetics | None = None,
+    prior_path: Path | None = None,
+    law: str | None = None,
+    order=None,
+    force: bool = False,
+    recipe: str | None = None,
+    progress=None,
+    clock: Callable[[], datetime] | None = None,
+) -> dict:
     """Fit kinetics to isothermal lab runs; also the classic per-run methods.
 
     The kinetics written are those of the joint fit of all runs (Ea when they span
@@ -454,8 +652,17 @@ def fit_lab_csv(path: str | Path, out: str | Path, *, prior: Kinetics | None = N
     if law is None:
         law = prior.rate_law if prior is not None else "power"
     law, order = _law_and_order(law, order, prior, prior_path)
-    fit, cands = _run_fits(series, law, order, prior, where=prior_path, per_batch_activity=False,
-                           sd_known=sd_known, outlier_sigma=None, progress=progress)
+    fit, cands = _run_fits(
+        series,
+        law,
+        order,
+        prior,
+        where=prior_path,
+        per_batch_activity=False,
+        sd_known=sd_known,
+        outlier_sigma=None,
+        progress=progress,
+    )
     methods = []
     k_at_order = []
     fixed_order = None if order == "free" else float(fit.order)
@@ -464,32 +671,57 @@ def fit_lab_csv(path: str | Path, out: str | Path, *, prior: Kinetics | None = N
         row = {"run": s.name, "T_K": T, "c_a0": s.c_a0, "n_points": len(s.assay_t_s)}
         t_all = np.concatenate([[0.0], s.assay_t_s])
         c_all = np.concatenate([[s.c_a0], s.assay_value])
-        for key, fn, fn_args in (("integral", fit_integral,
-                                  (s.assay_t_s, s.assay_value, s.c_a0, fixed_order)),
-                                 ("differential", fit_differential, (t_all, c_all))):
+        for key, fn, fn_args in (
+            ("integral", fit_integral, (s.assay_t_s, s.assay_value, s.c_a0, fixed_order)),
+            ("differential", fit_differential, (t_all, c_all)),
+        ):
             try:
                 r = fn(*fn_args)
-                row[key] = {"k": r.k, "order": r.order, "stderr_k": r.stderr_k,
-                            "stderr_order": r.stderr_order}
+                row[key] = {
+                    "k": r.k,
+                    "order": r.order,
+                    "stderr_k": r.stderr_k,
+                    "stderr_order": r.stderr_order,
+                }
             except ValueError as exc:
                 row[key] = {"note": str(exc)}
         if fit.rate_law == "power" and len(s.assay_t_s) >= 1:
-            k_at_order.append((T, fit_integral(s.assay_t_s, s.assay_value, s.c_a0,
-                                               fit.order).k))
+            k_at_order.append((T, fit_integral(s.assay_t_s, s.assay_value, s.c_a0, fit.order).k))
         methods.append(row)
     arr = None
     temps = sorted({round(T, 2) for T, _ in k_at_order})
     if len(temps) >= 2:
         a = fit_arrhenius([T for T, _ in k_at_order], [k for _, k in k_at_order])
-        arr = {"order": fit.order, "k_ref": a.k_ref, "t_ref_k": a.t_ref_k,
-               "ea_j_per_mol": a.ea_j_per_mol, "stderr_ea_j_per_mol": a.stderr_ea_j_per_mol,
-               "correlation_ln_k_ref_ea": a.correlation}
-    source = {"recipe": recipe, "lab_csv": str(Path(path).resolve()),
-              "runs": [s.name for s in series]}
-    notes = [f"activity_sd {'kept from the prior kinetics' if prior else 'set to 0.05'}: lab "
-             "runs say nothing about the batch-to-batch spread at the plant"]
-    return _finish(fit, cands, prior, prior_path, out, force, notes, source, LAB_METHOD, clock,
-                   {"lab_methods": methods, "arrhenius": arr})
+        arr = {
+            "order": fit.order,
+            "k_ref": a.k_ref,
+            "t_ref_k": a.t_ref_k,
+            "ea_j_per_mol": a.ea_j_per_mol,
+            "stderr_ea_j_per_mol": a.stderr_ea_j_per_mol,
+            "correlation_ln_k_ref_ea": a.correlation,
+        }
+    source = {
+        "recipe": recipe,
+        "lab_csv": str(Path(path).resolve()),
+        "runs": [s.name for s in series],
+    }
+    notes = [
+        f"activity_sd {'kept from the prior kinetics' if prior else 'set to 0.05'}: lab "
+        "runs say nothing about the batch-to-batch spread at the plant"
+    ]
+    return _finish(
+        fit,
+        cands,
+        prior,
+        prior_path,
+        out,
+        force,
+        notes,
+        source,
+        LAB_METHOD,
+        clock,
+        {"lab_methods": methods, "arrhenius": arr},
+    )
 
 
 # ----------------------------------------------------------------------------- plots
@@ -505,8 +737,7 @@ def write_plots(fit: PlantFit, out: str | Path) -> dict[str, Path]:
     res, t_h = cat([r["residual"] for r in rs]), cat([r["t_s"] for r in rs]) / 3600.0
     used = cat([r["used"] for r in rs])
     series = cat([np.full(len(r["t_s"]), i) for i, r in enumerate(rs)])
-    color = dict(c=series[used], cmap="viridis", vmin=0, vmax=max(len(rs) - 1, 1), s=14,
-                 alpha=0.8)
+    color = dict(c=series[used], cmap="viridis", vmin=0, vmax=max(len(rs) - 1, 1), s=14, alpha=0.8)
     left_out = dict(s=40, marker="x", color="red", label="left out (outlier)")
 
     fig = Figure(figsize=(6.0, 6.0), dpi=110)
@@ -520,8 +751,11 @@ def write_plots(fit: PlantFit, out: str | Path) -> dict[str, Path]:
     ax.plot([lo, hi], [lo, hi], color="black", lw=1)
     ax.set_xlabel("predicted assay")
     ax.set_ylabel("observed assay")
-    ax.set_title(f"{fit.rate_law} law: {fit.n_assays} assays, {fit.n_series} series, "
-                 f"RMSE {fit.rmse:.3g} (colour: series)", fontsize=10)
+    ax.set_title(
+        f"{fit.rate_law} law: {fit.n_assays} assays, {fit.n_series} series, "
+        f"RMSE {fit.rmse:.3g} (colour: series)",
+        fontsize=10,
+    )
     fig.tight_layout()
     fig.savefig(paths["parity"])
 
@@ -541,5 +775,11 @@ def write_plots(fit: PlantFit, out: str | Path) -> dict[str, Path]:
     return paths
 
 
-__all__ = ["fit_lab_csv", "fit_recipe", "load_series", "next_free_name", "read_lab_csv",
-           "write_plots"]
+__all__ = [
+    "fit_lab_csv",
+    "fit_recipe",
+    "load_series",
+    "next_free_name",
+    "read_lab_csv",
+    "write_plots",
+]

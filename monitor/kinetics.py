@@ -21,9 +21,23 @@ import tomli_w
 from .errors import KineticsError
 from .physics.rate_laws import LAWS, make_law
 
-_KEYS = {"rate_law", "order", "k_ref", "t_ref_k", "ea_j_per_mol", "activity_sd", "theta_b", "b",
-         "theta_r", "k_eq_ref", "dh_rxn_j_per_mol", "epsilon", "provenance", "stderr",
-         "correlation"}
+_KEYS = {
+    "rate_law",
+    "order",
+    "k_ref",
+    "t_ref_k",
+    "ea_j_per_mol",
+    "activity_sd",
+    "theta_b",
+    "b",
+    "theta_r",
+    "k_eq_ref",
+    "dh_rxn_j_per_mol",
+    "epsilon",
+    "provenance",
+    "stderr",
+    "correlation",
+}
 
 
 @dataclass(frozen=True)
@@ -53,9 +67,16 @@ class Kinetics:
     @cached_property
     def law(self):
         """The rate-law object (built once; the dataclass is frozen)."""
-        return make_law(self.rate_law, order=self.order, theta_b=self.theta_b, b=self.b,
-                        theta_r=self.theta_r, k_eq_ref=self.k_eq_ref,
-                        dh_rxn_j_per_mol=self.dh_rxn_j_per_mol, epsilon=self.epsilon)
+        return make_law(
+            self.rate_law,
+            order=self.order,
+            theta_b=self.theta_b,
+            b=self.b,
+            theta_r=self.theta_r,
+            k_eq_ref=self.k_eq_ref,
+            dh_rxn_j_per_mol=self.dh_rxn_j_per_mol,
+            epsilon=self.epsilon,
+        )
 
     @property
     def version(self) -> str:
@@ -64,8 +85,7 @@ class Kinetics:
 
     def parameter_cov(self) -> np.ndarray:
         """Covariance of (ln k_ref, Ea [J/mol], order) from the standard errors."""
-        sd = np.array([self.stderr_k_ref / self.k_ref, self.stderr_ea_j_per_mol,
-                       self.stderr_order])
+        sd = np.array([self.stderr_k_ref / self.k_ref, self.stderr_ea_j_per_mol, self.stderr_order])
         corr = np.asarray(self.correlation, dtype=float) if self.correlation else np.eye(3)
         return corr * np.outer(sd, sd)
 
@@ -103,15 +123,17 @@ def kinetics_from_dict(data: dict, *, path=None, digest: str = "") -> Kinetics:
 
     law = data.get("rate_law")
     if law not in LAWS:
-        raise KineticsError(f"expected one of {', '.join(LAWS)}, got {law!r}", path=path,
-                            key="rate_law")
+        raise KineticsError(
+            f"expected one of {', '.join(LAWS)}, got {law!r}", path=path, key="rate_law"
+        )
     stderr = data.get("stderr", {})
     if not isinstance(stderr, dict):
         raise KineticsError("expected a table", path=path, key="stderr")
     corr = data.get("correlation", ())
     if corr and (np.shape(corr) != (3, 3)):
-        raise KineticsError("expected a 3x3 list (ln k_ref, Ea, order)", path=path,
-                            key="correlation")
+        raise KineticsError(
+            "expected a 3x3 list (ln k_ref, Ea, order)", path=path, key="correlation"
+        )
     kin = Kinetics(
         rate_law=law,
         k_ref=num("k_ref", positive=True),
@@ -147,8 +169,11 @@ def kinetics_to_dict(kin: Kinetics) -> dict:
     d = {k: v for k, v in asdict(kin).items() if v is not None}
     for k in ("source", "digest"):
         d.pop(k)
-    d["stderr"] = {"k_ref": d.pop("stderr_k_ref"), "ea_j_per_mol": d.pop("stderr_ea_j_per_mol"),
-                   "order": d.pop("stderr_order")}
+    d["stderr"] = {
+        "k_ref": d.pop("stderr_k_ref"),
+        "ea_j_per_mol": d.pop("stderr_ea_j_per_mol"),
+        "order": d.pop("stderr_order"),
+    }
     corr = d.pop("correlation")
     if corr:
         d["correlation"] = [list(r) for r in corr]

@@ -42,8 +42,15 @@ class CycleReport:
 class Monitor:
     """In-memory batch states between cycles; rebuilt from store and historian on start."""
 
-    def __init__(self, cfg: Config, *, clock: Callable[[], float] = time.time, reader=None,
-                 store: Store | None = None, writer=None):
+    def __init__(
+        self,
+        cfg: Config,
+        *,
+        clock: Callable[[], float] = time.time,
+        reader=None,
+        store: Store | None = None,
+        writer=None,
+    ):
         from .historian.reader import HistorianReader
 
         self.cfg = cfg
@@ -74,8 +81,12 @@ class Monitor:
         if self.cfg.recipe(b.recipe) is None or self.cfg.unit(b.unit) is None:
             if b.batch not in self._unmonitored:  # once, not on every cycle
                 self._unmonitored.add(b.batch)
-                log.warning("batch %s: recipe %s or unit %s not configured; not monitored",
-                            b.batch, b.recipe, b.unit)
+                log.warning(
+                    "batch %s: recipe %s or unit %s not configured; not monitored",
+                    b.batch,
+                    b.recipe,
+                    b.unit,
+                )
             return None
         data = self.reader.read_batch(b, until_s=until_s)
         state = build_state(self.cfg, data, self._model(b.recipe))
@@ -107,8 +118,16 @@ class Monitor:
                 if self._start_batch(b) is None:
                     continue
             by_unit.setdefault(b.unit, []).append(b)
-            batch_rows.append({"batch": b.batch, "unit": b.unit, "recipe": b.recipe,
-                               "start_s": b.start_s, "end_s": b.end_s, "state": b.state})
+            batch_rows.append(
+                {
+                    "batch": b.batch,
+                    "unit": b.unit,
+                    "recipe": b.recipe,
+                    "start_s": b.start_s,
+                    "end_s": b.end_s,
+                    "state": b.state,
+                }
+            )
         for tag, samples in poll.samples.items():
             role_unit = self.reader.role_of(tag)
             if role_unit is None or not len(samples):
@@ -136,16 +155,28 @@ class Monitor:
                 doc = estimate_json(est)
                 est_rows.append(_estimate_row(est, doc))
                 wb_items.append((b.unit, est_rows[-1]))
-                kin_rows.append({"version": st.kinetics.version, "recipe": b.recipe,
-                                 "source": st.kinetics.source, "first_used_s": at})
+                kin_rows.append(
+                    {
+                        "version": st.kinetics.version,
+                        "recipe": b.recipe,
+                        "source": st.kinetics.source,
+                        "first_used_s": at,
+                    }
+                )
                 changes.extend(self._alerts(b, est, now))
                 if b.end_s is not None:
                     rep.completed.append(b.batch)
         rep.running = sum(1 for b in batches if b.end_s is None and b.batch in self.states)
         t_est = time.perf_counter()
-        added = self.store.commit_cycle(watermark=poll.watermark, batch_rows=batch_rows,
-                                        estimate_rows=est_rows, alert_changes=changes,
-                                        kinetics_rows=kin_rows, now_s=now, last_data_s=last_data)
+        added = self.store.commit_cycle(
+            watermark=poll.watermark,
+            batch_rows=batch_rows,
+            estimate_rows=est_rows,
+            alert_changes=changes,
+            kinetics_rows=kin_rows,
+            now_s=now,
+            last_data_s=last_data,
+        )
         t_commit = time.perf_counter()
         self.watermark = poll.watermark
         for b in rep.completed:
@@ -158,35 +189,56 @@ class Monitor:
                 self.writer.write(pending)
                 self._wb_backlog = []
             except MonitorError as exc:  # results are safe in the store; retried next cycle
-                log.warning("write-back failed (%d rows kept for the next cycle): %s",
-                            len(pending), exc)
+                log.warning(
+                    "write-back failed (%d rows kept for the next cycle): %s", len(pending), exc
+                )
                 self._wb_backlog = pending[-10_000:]
         rep.estimates_added, rep.alerts_added = added["estimates"], added["alerts"]
-        rep.timings = {"read_s": t_read - t0, "estimate_s": t_est - t_read,
-                       "commit_s": t_commit - t_est}
+        rep.timings = {
+            "read_s": t_read - t0,
+            "estimate_s": t_est - t_read,
+            "commit_s": t_commit - t_est,
+        }
         return rep
 
     def _alerts(self, b: Batch, est, now: float) -> list[dict]:
         """Raise or clear the alert kinds the estimate shows (advisory)."""
         conditions = {
-            "assay_mismatch": ("warning", bool(est.mismatched_assays),
-                               "; ".join(w for w in est.warnings
-                                         if w.startswith("assay-mismatch"))),
+            "assay_mismatch": (
+                "warning",
+                bool(est.mismatched_assays),
+                "; ".join(w for w in est.warnings if w.startswith("assay-mismatch")),
+            ),
             "target_unreachable": ("warning", est.predicted_end_s is None, est.forecast_note),
-            "stale_data": ("warning", any(w.startswith("temperature stale") for w in est.warnings),
-                           "temperature data stale"),
+            "stale_data": (
+                "warning",
+                any(w.startswith("temperature stale") for w in est.warnings),
+                "temperature data stale",
+            ),
         }
         out = []
         for kind, (severity, active, message) in conditions.items():
             key = (b.batch, kind)
             if active and key not in self._open_alerts:
-                row = {"op": "raise", "batch": b.batch, "kind": kind, "severity": severity,
-                       "state": "open", "raised_at_s": est.at_s, "message": message}
+                row = {
+                    "op": "raise",
+                    "batch": b.batch,
+                    "kind": kind,
+                    "severity": severity,
+                    "state": "open",
+                    "raised_at_s": est.at_s,
+                    "message": message,
+                }
                 self._open_alerts[key] = row
                 out.append(row)
             elif not active and key in self._open_alerts and "id" in self._open_alerts[key]:
-                out.append({"op": "clear", "id": self._open_alerts.pop(key)["id"],
-                            "cleared_at_s": est.at_s})
+                out.append(
+                    {
+                        "op": "clear",
+                        "id": self._open_alerts.pop(key)["id"],
+                        "cleared_at_s": est.at_s,
+                    }
+                )
         return out
 
     def refresh_alert_ids(self) -> None:
@@ -197,8 +249,12 @@ class Monitor:
         try:
             rep = self.cycle()
             self.refresh_alert_ids()
-            log.info("cycle: %d rows, %d running, %d estimates", rep.rows_read, rep.running,
-                     rep.estimates_added)
+            log.info(
+                "cycle: %d rows, %d running, %d estimates",
+                rep.rows_read,
+                rep.running,
+                rep.estimates_added,
+            )
             return rep
         except MonitorError as exc:
             log.warning("cycle failed, retried next time: %s", exc)
@@ -215,14 +271,23 @@ class Monitor:
 
 
 def _estimate_row(est, doc) -> dict:
-    return {"batch": est.batch, "at_s": est.at_s, "conversion": est.conversion,
-            "conversion_sd": est.conversion_sd, "activity": est.activity,
-            "activity_sd": est.activity_sd, "target_conversion": est.target_conversion,
-            "predicted_end_s": est.predicted_end_s, "p10_s": est.predicted_end_p10_s,
-            "p90_s": est.predicted_end_p90_s, "forecast_note": est.forecast_note,
-            "n_assays_used": est.n_assays_used, "warnings": json.dumps(est.warnings),
-            "kinetics_version": est.kinetics_version,
-            "doc": json.dumps(doc, default=str)}
+    return {
+        "batch": est.batch,
+        "at_s": est.at_s,
+        "conversion": est.conversion,
+        "conversion_sd": est.conversion_sd,
+        "activity": est.activity,
+        "activity_sd": est.activity_sd,
+        "target_conversion": est.target_conversion,
+        "predicted_end_s": est.predicted_end_s,
+        "p10_s": est.predicted_end_p10_s,
+        "p90_s": est.predicted_end_p90_s,
+        "forecast_note": est.forecast_note,
+        "n_assays_used": est.n_assays_used,
+        "warnings": json.dumps(est.warnings),
+        "kinetics_version": est.kinetics_version,
+        "doc": json.dumps(doc, default=str),
+    }
 
 
 class StoreLock:
@@ -245,8 +310,9 @@ class StoreLock:
             fcntl.flock(self._fh, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except BlockingIOError:
             self._fh.close()
-            raise LockError(f"another convmon run is already using this store (lock "
-                            f"{self.path}); stop it first") from None
+            raise LockError(
+                f"another convmon run is already using this store (lock {self.path}); stop it first"
+            ) from None
         self._fh.seek(0)
         self._fh.truncate()
         self._fh.write(str(os.getpid()))
@@ -265,19 +331,31 @@ def run_service(cfg: Config, *, once: bool = False) -> int:
         monitor = Monitor(cfg)
         if once:
             rep = monitor.cycle()
-            log.info("one cycle: %d rows read, %d running, %d estimates added",
-                        rep.rows_read, rep.running, rep.estimates_added)
-            print(f"cycle done: {rep.rows_read} rows read, {rep.running} running batches, "
-                  f"{rep.estimates_added} estimates and {rep.alerts_added} alerts added")
+            log.info(
+                "one cycle: %d rows read, %d running, %d estimates added",
+                rep.rows_read,
+                rep.running,
+                rep.estimates_added,
+            )
+            print(
+                f"cycle done: {rep.rows_read} rows read, {rep.running} running batches, "
+                f"{rep.estimates_added} estimates and {rep.alerts_added} alerts added"
+            )
             return 0
         from apscheduler.events import EVENT_JOB_MAX_INSTANCES, EVENT_JOB_MISSED
         from apscheduler.schedulers.blocking import BlockingScheduler
 
         sched = BlockingScheduler(timezone="UTC")
-        sched.add_job(monitor.run_cycle_safely, "interval", seconds=cfg.poll.interval_s,
-                      max_instances=1, coalesce=True,
-                      misfire_grace_time=int(cfg.poll.misfire_grace_s), id="poll",
-                      next_run_time=None)
+        sched.add_job(
+            monitor.run_cycle_safely,
+            "interval",
+            seconds=cfg.poll.interval_s,
+            max_instances=1,
+            coalesce=True,
+            misfire_grace_time=int(cfg.poll.misfire_grace_s),
+            id="poll",
+            next_run_time=None,
+        )
         sched.modify_job("poll", next_run_time=_utcnow())
         sched.add_listener(_log_skipped, EVENT_JOB_MISSED | EVENT_JOB_MAX_INSTANCES)
 
@@ -295,9 +373,13 @@ def _log_skipped(event) -> None:
     """A cycle the scheduler did not run (still busy, or missed beyond the grace time)."""
     from apscheduler.events import EVENT_JOB_MAX_INSTANCES
 
-    log.warning("poll cycle skipped (%s) at %s", "previous cycle still running"
-                if event.code == EVENT_JOB_MAX_INSTANCES else "missed its grace time",
-                event.scheduled_run_time)
+    log.warning(
+        "poll cycle skipped (%s) at %s",
+        "previous cycle still running"
+        if event.code == EVENT_JOB_MAX_INSTANCES
+        else "missed its grace time",
+        event.scheduled_run_time,
+    )
 
 
 def _utcnow():

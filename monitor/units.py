@@ -87,8 +87,9 @@ def parse_quantity(text: str, si_unit: str, *, path=None, key: str | None = None
 
     ureg = _registry()
     if not isinstance(text, str):
-        raise ConfigError(f"expected a quantity with its unit, e.g. '{si_unit}', got {text!r}",
-                          path=path, key=key)
+        raise ConfigError(
+            f"expected a quantity with its unit, e.g. '{si_unit}', got {text!r}", path=path, key=key
+        )
     try:
         m = _NUMBER.match(text)
         if not m or not m.group(2).strip():
@@ -97,5 +98,6 @@ def parse_quantity(text: str, si_unit: str, *, path=None, key: str | None = None
         q = ureg.Quantity(float(m.group(1)), m.group(2).strip())
         return float(q.to(si_unit).magnitude)
     except (pint.errors.PintError, ValueError, TypeError, AttributeError) as exc:
-        raise ConfigError(f"cannot read {text!r} as a quantity in {si_unit}: {exc}",
-                          path=path, key=key) from None
+        raise ConfigError(
+            f"cannot read {text!r} as a quantity in {si_unit}: {exc}", path=path, key=key
+        ) from None

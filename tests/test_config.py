@@ -45,26 +45,41 @@ def test_env_var_expansion(tmp_path, monkeypatch):
     assert "s3cret" in load_config(write(tmp_path, text)).historian.url
 
 
-@pytest.mark.parametrize("edit, key", [
-    (lambda t: t + "\n[poll]\nintervl_s = 3\n", "poll.intervl_s"),  # unknown key
-    (lambda t: t.replace('name = "R-1"', 'name = 7'), "units[0].name"),  # wrong type
-    (lambda t: t.replace('temperature_tag = "R1.TT"',
-                         'temperature_tag = "R1.TT"\ntemperature_unit = "degR"'),
-     "units[0].temperature_unit"),  # unknown unit
-    (lambda t: t.replace('kinetics = "k.toml"', 'target_conversion = 0.9'),
-     "recipes.AX.kinetics"),  # recipe without kinetics
-    (lambda t: t.replace('temperature_tag = "R1.TT"', ''), "units[0].temperature_tag"),
-    (lambda t: t.replace("sqlite:///plant.db", "${NOPE_NOT_SET}"), "historian.url"),
-    (lambda t: t + '\n[site]\ntimezone = "Mars/Olympus"\n', "site.timezone"),
-    (lambda t: t.replace('kinetics = "k.toml"',
-                         'kinetics = "k.toml"\ntemperature_plan = [[0, 40], [10]]'),
-     "recipes.AX.temperature_plan"),
-    (lambda t: t.replace('kinetics = "k.toml"',
-                         'kinetics = "k.toml"\n[recipes.AX.safety]\nheat_of_reaction = "-85 kJ"\n'
-                         'heat_capacity = "1.9 kJ/(kg*K)"\ndensity = "950 kg/m^3"\n'
-                         'mtt = "80 degC"\nt_d24 = "150 degC"'),
-     "recipes.AX.safety.heat_of_reaction"),  # wrong dimension
-])
+@pytest.mark.parametrize(
+    "edit, key",
+    [
+        (lambda t: t + "\n[poll]\nintervl_s = 3\n", "poll.intervl_s"),  # unknown key
+        (lambda t: t.replace('name = "R-1"', "name = 7"), "units[0].name"),  # wrong type
+        (
+            lambda t: t.replace(
+                'temperature_tag = "R1.TT"', 'temperature_tag = "R1.TT"\ntemperature_unit = "degR"'
+            ),
+            "units[0].temperature_unit",
+        ),  # unknown unit
+        (
+            lambda t: t.replace('kinetics = "k.toml"', "target_conversion = 0.9"),
+            "recipes.AX.kinetics",
+        ),  # recipe without kinetics
+        (lambda t: t.replace('temperature_tag = "R1.TT"', ""), "units[0].temperature_tag"),
+        (lambda t: t.replace("sqlite:///plant.db", "${NOPE_NOT_SET}"), "historian.url"),
+        (lambda t: t + '\n[site]\ntimezone = "Mars/Olympus"\n', "site.timezone"),
+        (
+            lambda t: t.replace(
+                'kinetics = "k.toml"', 'kinetics = "k.toml"\ntemperature_plan = [[0, 40], [10]]'
+            ),
+            "recipes.AX.temperature_plan",
+        ),
+        (
+            lambda t: t.replace(
+                'kinetics = "k.toml"',
+                'kinetics = "k.toml"\n[recipes.AX.safety]\nheat_of_reaction = "-85 kJ"\n'
+                'heat_capacity = "1.9 kJ/(kg*K)"\ndensity = "950 kg/m^3"\n'
+                'mtt = "80 degC"\nt_d24 = "150 degC"',
+            ),
+            "recipes.AX.safety.heat_of_reaction",
+        ),  # wrong dimension
+    ],
+)
 def test_bad_config_names_the_key(tmp_path, edit, key):
     p = write(tmp_path, edit(BASE))
     with pytest.raises(ConfigError) as err:
@@ -83,10 +98,21 @@ def test_missing_and_malformed_files(tmp_path):
 
 
 def test_safety_quantities_are_converted_to_si():
-    data = {"historian": {"url": "sqlite:////tmp/x.db"},
-            "recipes": {"AX": {"kinetics": "k.toml", "safety": {
-                "heat_of_reaction": "-20.3 kcal/mol", "heat_capacity": "1.9 kJ/(kg*K)",
-                "density": "0.95 g/cm^3", "mtt": "176 degF", "t_d24": "423.15 K"}}}}
+    data = {
+        "historian": {"url": "sqlite:////tmp/x.db"},
+        "recipes": {
+            "AX": {
+                "kinetics": "k.toml",
+                "safety": {
+                    "heat_of_reaction": "-20.3 kcal/mol",
+                    "heat_capacity": "1.9 kJ/(kg*K)",
+                    "density": "0.95 g/cm^3",
+                    "mtt": "176 degF",
+                    "t_d24": "423.15 K",
+                },
+            }
+        },
+    }
     s = config_from_dict(data).recipes["AX"].safety
     # 1 kcal (thermochemical) = 4184 J (NIST SP 811, 2008, B.8)
     assert s.heat_of_reaction_j_per_mol == pytest.approx(-20.3 * 4184.0, rel=1e-3)
@@ -96,8 +122,11 @@ def test_safety_quantities_are_converted_to_si():
 
 def test_cli_broken_config_is_one_line_exit_2(tmp_path):
     p = write(tmp_path, BASE + "\n[poll]\nbogus = 1\n")
-    r = subprocess.run([sys.executable, "-m", "monitor", "batches", "--config", str(p)],
-                       capture_output=True, text=True)
+    r = subprocess.run(
+        [sys.executable, "-m", "monitor", "batches", "--config", str(p)],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 2
     assert r.stderr.strip().count("\n") == 0 and "poll.bogus" in r.stderr
     assert "Traceback" not in r.stderr
@@ -109,8 +138,9 @@ def test_every_command_has_help_with_an_example():
     parser = build_parser()
     assert COMMANDS
     for name in COMMANDS:
-        r = subprocess.run([sys.executable, "-m", "monitor", name, "--help"],
-                           capture_output=True, text=True)
+        r = subprocess.run(
+            [sys.executable, "-m", "monitor", name, "--help"], capture_output=True, text=True
+        )
         assert r.returncode == 0, name
         assert f"convmon {name}" in r.stdout.split("example:")[-1], name
     assert "examples:" in parser.format_help()
@@ -121,13 +151,19 @@ def _export(tmp_path, *, events=True):
 
     db = tmp_path / "plant.db"
     con = sqlite3.connect(db)
-    con.execute("CREATE TABLE tag_samples (seq INTEGER PRIMARY KEY, tag TEXT, ts TEXT, "
-                "value REAL, quality INTEGER)")
-    con.execute("CREATE TABLE batch_events (seq INTEGER PRIMARY KEY, batch_id TEXT, unit TEXT, "
-                "recipe TEXT, event TEXT, ts TEXT)")
+    con.execute(
+        "CREATE TABLE tag_samples (seq INTEGER PRIMARY KEY, tag TEXT, ts TEXT, "
+        "value REAL, quality INTEGER)"
+    )
+    con.execute(
+        "CREATE TABLE batch_events (seq INTEGER PRIMARY KEY, batch_id TEXT, unit TEXT, "
+        "recipe TEXT, event TEXT, ts TEXT)"
+    )
     if events:
-        con.execute("INSERT INTO batch_events VALUES (1, 'B1', 'R-1', 'AX', 'start', "
-                    "'2026-10-01T06:00:00+00:00')")
+        con.execute(
+            "INSERT INTO batch_events VALUES (1, 'B1', 'R-1', 'AX', 'start', "
+            "'2026-10-01T06:00:00+00:00')"
+        )
     con.commit()
     con.close()
     return db
@@ -136,15 +172,28 @@ def _export(tmp_path, *, events=True):
 def test_cli_historian_problems_exit_codes(tmp_path):
     """Unreachable export -> 3; a configured table the database lacks -> 2; no batches -> 3."""
     cfg = write(tmp_path, BASE)
-    r = subprocess.run([sys.executable, "-m", "monitor", "batches", "--config", str(cfg)],
-                       capture_output=True, text=True)
+    r = subprocess.run(
+        [sys.executable, "-m", "monitor", "batches", "--config", str(cfg)],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 3 and "unreachable" in r.stderr and "Traceback" not in r.stderr
     _export(tmp_path, events=False)
-    r = subprocess.run([sys.executable, "-m", "monitor", "batches", "--config", str(cfg)],
-                       capture_output=True, text=True)
+    r = subprocess.run(
+        [sys.executable, "-m", "monitor", "batches", "--config", str(cfg)],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 3 and "no batches" in r.stderr
-    bad = write(tmp_path, BASE.replace('url = "sqlite:///plant.db"',
-                                       'url = "sqlite:///plant.db"\nevents_table = "evts"'))
-    r = subprocess.run([sys.executable, "-m", "monitor", "batches", "--config", str(bad)],
-                       capture_output=True, text=True)
+    bad = write(
+        tmp_path,
+        BASE.replace(
+            'url = "sqlite:///plant.db"', 'url = "sqlite:///plant.db"\nevents_table = "evts"'
+        ),
+    )
+    r = subprocess.run(
+        [sys.executable, "-m", "monitor", "batches", "--config", str(bad)],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 2 and "evts" in r.stderr and "historian.events_table" in r.stderr

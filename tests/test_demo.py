@@ -12,14 +12,19 @@ from monitor.store.db import Store, kinetics_versions
 
 def test_demo_runs_the_whole_job(tmp_path):
     out = tmp_path / "demo"
-    r = subprocess.run([sys.executable, "-m", "monitor", "demo", "--fast", "--out", str(out)],
-                       capture_output=True, text=True, timeout=600)
+    r = subprocess.run(
+        [sys.executable, "-m", "monitor", "demo", "--fast", "--out", str(out)],
+        capture_output=True,
+        text=True,
+        timeout=600,
+    )
     assert r.returncode == 0, r.stderr[-2000:]
     assert "demo done" in r.stdout and "advisory only" in r.stdout
     # the kinetics were fitted from history and used for the replay
     fitted = sorted((out / "kinetics").glob("*.toml"))
-    assert len(fitted) == 2 and all((out / "kinetics" / f"{p.stem}_parity.png").exists()
-                                    for p in fitted)
+    assert len(fitted) == 2 and all(
+        (out / "kinetics" / f"{p.stem}_parity.png").exists() for p in fitted
+    )
     store = Store(f"sqlite:///{out / 'convmon.db'}")
     try:
         snap = store.snapshot()

@@ -28,14 +28,27 @@ from monitor.kinetics import load_kinetics
 REPO = Path(__file__).resolve().parents[1]
 LAB_EXAMPLE = REPO / "config" / "lab" / "dim7_lab_runs.csv"
 R = 8.314462618
-FIT_KEYS = {"rate_law", "order", "k_ref", "t_ref_k", "ea_j_per_mol", "stderr", "activity_sd",
-            "n_batches", "n_assays", "rmse", "aic", "candidates"}
+FIT_KEYS = {
+    "rate_law",
+    "order",
+    "k_ref",
+    "t_ref_k",
+    "ea_j_per_mol",
+    "stderr",
+    "activity_sd",
+    "n_batches",
+    "n_assays",
+    "rmse",
+    "aic",
+    "candidates",
+}
 
 
 def convmon(*args, cwd=None):
     """The real command in a fresh interpreter (stdout must be exactly the JSON)."""
-    return subprocess.run([sys.executable, "-m", "monitor", *args], capture_output=True,
-                          text=True, cwd=cwd)
+    return subprocess.run(
+        [sys.executable, "-m", "monitor", *args], capture_output=True, text=True, cwd=cwd
+    )
 
 
 def run_main(capsys, *args):
@@ -48,7 +61,8 @@ def run_main(capsys, *args):
 def k_at(recipe_truth: dict, t_ref_k: float) -> float:
     """The generator's k_ref moved to another reference temperature."""
     return recipe_truth["k_ref"] * math.exp(
-        -recipe_truth["ea_j_per_mol"] / R * (1 / t_ref_k - 1 / recipe_truth["t_ref_k"]))
+        -recipe_truth["ea_j_per_mol"] / R * (1 / t_ref_k - 1 / recipe_truth["t_ref_k"])
+    )
 
 
 def inside(interval, value) -> bool:
@@ -59,8 +73,16 @@ def inside(interval, value) -> bool:
 @pytest.fixture(scope="module")
 def small_fit(small_plant, tmp_path_factory):
     out = tmp_path_factory.mktemp("fit") / "dim7-v1.toml"
-    r = convmon("fit", "--config", str(small_plant.config_path), "--recipe", "DIM-7",
-                "--out", str(out), "--json")
+    r = convmon(
+        "fit",
+        "--config",
+        str(small_plant.config_path),
+        "--recipe",
+        "DIM-7",
+        "--out",
+        str(out),
+        "--json",
+    )
     return r, out
 
 
@@ -72,8 +94,11 @@ def test_fit_json_has_the_interface_keys(small_fit, small_plant):
     assert set(doc["stderr"]) == {"k_ref", "ea_j_per_mol", "order"}
     assert (doc["rate_law"], doc["order"]) == ("power", 2.0)  # the recipe's current law
     assert doc["stderr"]["order"] is None  # fixed, not fitted
-    complete = [b["batch"] for b in small_plant.truth["batches"]
-                if b["recipe"] == "DIM-7" and b["state"] == "complete"]
+    complete = [
+        b["batch"]
+        for b in small_plant.truth["batches"]
+        if b["recipe"] == "DIM-7" and b["state"] == "complete"
+    ]
     assert doc["n_batches"] == len(complete) == len(doc["residuals_by_batch"])
     assert doc["n_assays"] == sum(b["n_assays"] for b in doc["residuals_by_batch"])
     labels = [c["label"] for c in doc["candidates"]]
@@ -109,14 +134,24 @@ def test_never_overwrites_silently(small_fit, small_plant, capsys):
     r, out = small_fit
     before = hashlib.sha256(out.read_bytes()).hexdigest()
     cfg = str(small_plant.config_path)
-    code, _, err = run_main(capsys, "fit", "--config", cfg, "--recipe", "DIM-7", "--out",
-                            str(out))
+    code, _, err = run_main(capsys, "fit", "--config", cfg, "--recipe", "DIM-7", "--out", str(out))
     assert code == 2
     assert "dim7-v2.toml" in err and "--force" in err
     assert hashlib.sha256(out.read_bytes()).hexdigest() == before
     two = ",".join(b["batch"] for b in json.loads(r.stdout)["residuals_by_batch"][:2])
-    code, text, err = run_main(capsys, "fit", "--config", cfg, "--recipe", "DIM-7", "--out",
-                               str(out), "--batches", two, "--force")
+    code, text, err = run_main(
+        capsys,
+        "fit",
+        "--config",
+        cfg,
+        "--recipe",
+        "DIM-7",
+        "--out",
+        str(out),
+        "--batches",
+        two,
+        "--force",
+    )
     assert code == 0, err
     assert "fitted power" in text and "Ea" in text
     assert load_kinetics(out).provenance["batches"] == two.split(",")
@@ -137,8 +172,9 @@ def test_fitted_file_loads_into_estimate(small_fit, small_plant, tmp_path, capsy
     cfg_path = tmp_path / "refitted.toml"
     cfg_path.write_text(tomli_w.dumps(data), encoding="utf-8")
     batch = next(b["batch"] for b in small_plant.truth["batches"] if b["recipe"] == "DIM-7")
-    code, text, err = run_main(capsys, "estimate", "--batch", batch, "--config",
-                               str(cfg_path), "--json")
+    code, text, err = run_main(
+        capsys, "estimate", "--batch", batch, "--config", str(cfg_path), "--json"
+    )
     assert code == 0, err
     est = json.loads(text)
     assert est["kinetics_version"] == load_kinetics(out).version
@@ -148,20 +184,36 @@ def test_fitted_file_loads_into_estimate(small_fit, small_plant, tmp_path, capsy
 def test_usage_errors_exit_2(small_plant, tmp_path, capsys):
     cfg = str(small_plant.config_path)
     out = str(tmp_path / "a.toml")
-    code, _, err = run_main(capsys, "fit", "--config", cfg, "--recipe", "DIM-7", "--order",
-                            "loose", "--out", out)
+    code, _, err = run_main(
+        capsys, "fit", "--config", cfg, "--recipe", "DIM-7", "--order", "loose", "--out", out
+    )
     assert code == 2 and "--order" in err
-    code, _, err = run_main(capsys, "fit", "--config", cfg, "--recipe", "DIM-7", "--batches",
-                            "NO-SUCH", "--out", out)
+    code, _, err = run_main(
+        capsys, "fit", "--config", cfg, "--recipe", "DIM-7", "--batches", "NO-SUCH", "--out", out
+    )
     assert code == 2 and "NO-SUCH" in err
-    running = [b["batch"] for b in small_plant.truth["batches"] if b["state"] == "running"
-               and b["recipe"] == "DIM-7"]
+    running = [
+        b["batch"]
+        for b in small_plant.truth["batches"]
+        if b["state"] == "running" and b["recipe"] == "DIM-7"
+    ]
     if running:
-        code, _, err = run_main(capsys, "fit", "--config", cfg, "--recipe", "DIM-7",
-                                "--batches", running[0], "--out", out)
+        code, _, err = run_main(
+            capsys,
+            "fit",
+            "--config",
+            cfg,
+            "--recipe",
+            "DIM-7",
+            "--batches",
+            running[0],
+            "--out",
+            out,
+        )
         assert code == 2 and "still running" in err
-    code, _, err = run_main(capsys, "fit", "--config", cfg, "--recipe", "DIM-7", "--law",
-                            "reversible", "--out", out)
+    code, _, err = run_main(
+        capsys, "fit", "--config", cfg, "--recipe", "DIM-7", "--law", "reversible", "--out", out
+    )
     assert code == 2 and "not separable" in err
     code, _, err = run_main(capsys, "fit", "--config", cfg, "--recipe", "NOPE", "--out", out)
     assert code == 2 and "NOPE" in err
@@ -189,8 +241,11 @@ def test_sample_plant_dim7_recovers_the_generator(sample_plant, tmp_path):
     """
     truth = sample_plant.truth
     drifted = set(truth["drift"]["batches"])
-    before = [b["batch"] for b in truth["batches"] if b["recipe"] == "DIM-7"
-              and b["state"] == "complete" and b["batch"] not in drifted]
+    before = [
+        b["batch"]
+        for b in truth["batches"]
+        if b["recipe"] == "DIM-7" and b["state"] == "complete" and b["batch"] not in drifted
+    ]
     cfg = load_config(sample_plant.config_path)
     doc = fitjob.fit_recipe(cfg, "DIM-7", tmp_path / "dim7.toml", batches=before, order="free")
     tr = truth["recipes"]["DIM-7"]
@@ -238,9 +293,21 @@ def test_lab_csv_levenspiel_3_1_free_order(tmp_path, capsys, monkeypatch):
     csv_path.write_text(LEVENSPIEL_3_1_CSV)
     monkeypatch.chdir(tmp_path)  # no convmon.toml here: a lab fit needs no configuration
     monkeypatch.delenv("CONVMON_CONFIG", raising=False)
-    code, text, err = run_main(capsys, "fit", "--recipe", "LAB", "--lab-csv", str(csv_path),
-                               "--law", "power", "--order", "free", "--out",
-                               str(tmp_path / "lev.toml"), "--json")
+    code, text, err = run_main(
+        capsys,
+        "fit",
+        "--recipe",
+        "LAB",
+        "--lab-csv",
+        str(csv_path),
+        "--law",
+        "power",
+        "--order",
+        "free",
+        "--out",
+        str(tmp_path / "lev.toml"),
+        "--json",
+    )
     assert code == 0, err
     doc = json.loads(text)
     assert 1.40 <= doc["order"] <= 1.46
@@ -249,9 +316,20 @@ def test_lab_csv_levenspiel_3_1_free_order(tmp_path, capsys, monkeypatch):
     assert any("Ea cannot be identified" in w for w in doc["warnings"])
     assert doc["lab_methods"][0]["differential"]["order"] == pytest.approx(1.4, abs=0.1)
     assert load_kinetics(tmp_path / "lev.toml").order == pytest.approx(doc["order"])
-    code, text, err = run_main(capsys, "fit", "--recipe", "LAB", "--lab-csv", str(csv_path),
-                               "--law", "power", "--order", "free", "--out",
-                               str(tmp_path / "lev2.toml"))
+    code, text, err = run_main(
+        capsys,
+        "fit",
+        "--recipe",
+        "LAB",
+        "--lab-csv",
+        str(csv_path),
+        "--law",
+        "power",
+        "--order",
+        "free",
+        "--out",
+        str(tmp_path / "lev2.toml"),
+    )
     assert code == 0, err
     assert "Ea           not identifiable from these data" in text
 
@@ -269,8 +347,9 @@ def test_lab_csv_example_at_three_temperatures(tmp_path):
 
 def test_lab_csv_headers_and_errors(tmp_path):
     p = tmp_path / "min.csv"
-    p.write_text("# minutes and Celsius\nrun,time_min,T_degC,c_a\nA,0,50,1.0\nA,1,50,0.9\n"
-                 "A,2,50,0.81\n")
+    p.write_text(
+        "# minutes and Celsius\nrun,time_min,T_degC,c_a\nA,0,50,1.0\nA,1,50,0.9\nA,2,50,0.81\n"
+    )
     series, sd_known = fitjob.read_lab_csv(p)
     assert not sd_known and series[0].T_K[0] == pytest.approx(323.15)
     assert list(series[0].assay_t_s) == [60.0, 120.0] and series[0].c_a0 == 1.0

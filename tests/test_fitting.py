@@ -123,22 +123,44 @@ def test_fogler_4_1_first_order_k():
 
 def test_joint_fit_of_one_isothermal_run_equals_the_integral_method():
     # the plant machinery (Θ, analytic Jacobian) on a lab run must give the lab answer
-    s = FitSeries("lev", np.array([0.0, 300.0]), np.array([300.0, 300.0]), 10.0,
-                  LEV_3_1_T[1:], LEV_3_1_C[1:], "concentration", 1.0)
+    s = FitSeries(
+        "lev",
+        np.array([0.0, 300.0]),
+        np.array([300.0, 300.0]),
+        10.0,
+        LEV_3_1_T[1:],
+        LEV_3_1_C[1:],
+        "concentration",
+        1.0,
+    )
     g = fit_batches([s], "power", "free", per_batch_activity=False, sd_known=False)
     f = fit_integral(LEV_3_1_T, LEV_3_1_C)
     assert_allclose([g.k_ref, g.order], [f.k, f.order], rtol=1e-6)
-    assert_allclose([g.stderr["k_ref"], g.stderr["order"]], [f.stderr_k, f.stderr_order],
-                    rtol=1e-4)
+    assert_allclose([g.stderr["k_ref"], g.stderr["order"]], [f.stderr_k, f.stderr_order], rtol=1e-4)
     # one temperature: Ea cannot be identified, and no prior was given
     assert g.ea_j_per_mol is None and g.stderr["ea_j_per_mol"] is None
     assert any("cannot be identified" in w for w in g.warnings)
 
 
 # ------------------------------------------------------------------ synthetic plant data
-def _batches(seed, n_batches=8, n_assays=6, ea=70e3, k_ref=5e-4, t_ref=343.15, order=2.0,
-             tau=0.05, sd=0.02, dt=60.0, holds=(333.15, 338.15, 343.15, 348.15),
-             dur_s=5 * 3600.0, law="power", theta_b=1.2, kind="concentration", t_noise=0.1):
+def _batches(
+    seed,
+    n_batches=8,
+    n_assays=6,
+    ea=70e3,
+    k_ref=5e-4,
+    t_ref=343.15,
+    order=2.0,
+    tau=0.05,
+    sd=0.02,
+    dt=60.0,
+    holds=(333.15, 338.15, 343.15, 348.15),
+    dur_s=5 * 3600.0,
+    law="power",
+    theta_b=1.2,
+    kind="concentration",
+    t_noise=0.1,
+):
     """Batches by an independent path: solve_ivp of the mole balance on the true T(t)."""
     rng = np.random.default_rng(seed)
     out, truth = [], []
@@ -164,15 +186,23 @@ def _batches(seed, n_batches=8, n_assays=6, ea=70e3, k_ref=5e-4, t_ref=343.15, o
         x0 = 0.0
         for lo, hi in ((0.0, ramp), (ramp, dur_s)):  # restart at the kink of T(t)
             inside = ta[(ta > lo) & (ta <= hi)]
-            sol = solve_ivp(rhs, (lo, hi), [x0], t_eval=np.r_[inside, hi], method="DOP853",
-                            rtol=1e-10, atol=1e-12)
+            sol = solve_ivp(
+                rhs,
+                (lo, hi),
+                [x0],
+                t_eval=np.r_[inside, hi],
+                method="DOP853",
+                rtol=1e-10,
+                atol=1e-12,
+            )
             x += list(sol.y[0][:-1])
             x0 = sol.y[0][-1]
         X = np.array(x)
         y = (c0 * (1 - X) if kind == "concentration" else X) + rng.normal(0.0, sd, n_assays)
         t = np.arange(0.0, dur_s + dt, dt)
-        out.append(FitSeries(f"B{b}", t, T_of(t) + rng.normal(0.0, t_noise, len(t)), c0, ta, y,
-                             kind, sd))
+        out.append(
+            FitSeries(f"B{b}", t, T_of(t) + rng.normal(0.0, t_noise, len(t)), c0, ta, y, kind, sd)
+        )
         truth.append(alpha)
     return out, np.array(truth)
 
@@ -236,10 +266,19 @@ def test_recovers_power_law_and_decorrelates_t_ref():
 
 
 def test_recovers_bimolecular_law_from_conversion_assays():
-    series, _ = _batches(12, n_batches=10, law="bimolecular", kind="conversion", sd=0.01,
-                         k_ref=3e-4, ea=58e3, tau=0.05)
-    f = fit_batches(series, "bimolecular", law_params={"theta_b": 1.2, "b": 1.0},
-                    ea_prior_j_per_mol=60e3)
+    series, _ = _batches(
+        12,
+        n_batches=10,
+        law="bimolecular",
+        kind="conversion",
+        sd=0.01,
+        k_ref=3e-4,
+        ea=58e3,
+        tau=0.05,
+    )
+    f = fit_batches(
+        series, "bimolecular", law_params={"theta_b": 1.2, "b": 1.0}, ea_prior_j_per_mol=60e3
+    )
     lo, hi = f.ci95["ea_j_per_mol"]
     assert lo <= 58e3 <= hi
     lo, hi = f.ci95["k_ref"]
@@ -283,8 +322,9 @@ def test_ea_unidentifiable_at_one_temperature_is_fixed_and_said():
 def test_order_unidentifiable_at_low_conversion_is_fixed():
     # assays only in the first minutes at a cold hold: conversion stays a few per cent
     series, _ = _batches(6, n_batches=6, n_assays=4, holds=(313.15,), dur_s=2400.0, tau=0.0)
-    f = fit_batches(series, "power", "free", ea_prior_j_per_mol=70e3, order_prior=2.0,
-                    per_batch_activity=False)
+    f = fit_batches(
+        series, "power", "free", ea_prior_j_per_mol=70e3, order_prior=2.0, per_batch_activity=False
+    )
     assert f.fixed.get("order") == "unidentifiable"
     assert f.order == 2.0 and f.stderr["order"] is None
     assert any(w.startswith("order cannot be identified") for w in f.warnings)
@@ -325,7 +365,13 @@ def test_refuses_what_it_cannot_fit():
         fit_batches(series, "power", "free", law_params={"epsilon": 0.2})
     with pytest.raises(ValueError, match="number or 'free'"):
         fit_batches(series, "power", "loose")
-    empty = FitSeries("x", np.array([0.0, 60.0]), np.array([340.0, 340.0]), 1.0,
-                      np.array([30.0]), np.array([np.nan]))
+    empty = FitSeries(
+        "x",
+        np.array([0.0, 60.0]),
+        np.array([340.0, 340.0]),
+        1.0,
+        np.array([30.0]),
+        np.array([np.nan]),
+    )
     with pytest.raises(ValueError, match="no series"):
         fit_batches([empty])

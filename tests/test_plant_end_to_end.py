@@ -15,8 +15,7 @@ from monitor.service import Monitor
 
 
 def convmon(*args):
-    return subprocess.run([sys.executable, "-m", "monitor", *args], capture_output=True,
-                          text=True)
+    return subprocess.run([sys.executable, "-m", "monitor", *args], capture_output=True, text=True)
 
 
 def test_batches_json_matches_the_generator(sample_plant):
@@ -57,10 +56,24 @@ def test_estimate_json_keys_and_at(sample_plant):
     r = convmon("estimate", "--batch", bid, "--config", str(sample_plant.config_path), "--json")
     assert r.returncode == 0, r.stderr
     doc = json.loads(r.stdout)
-    for k in ("batch", "unit", "recipe", "at", "start", "conversion", "conversion_sd",
-              "activity", "activity_sd", "target_conversion", "predicted_end",
-              "predicted_end_p10", "predicted_end_p90", "forecast_note", "n_assays_used",
-              "warnings"):
+    for k in (
+        "batch",
+        "unit",
+        "recipe",
+        "at",
+        "start",
+        "conversion",
+        "conversion_sd",
+        "activity",
+        "activity_sd",
+        "target_conversion",
+        "predicted_end",
+        "predicted_end_p10",
+        "predicted_end_p90",
+        "forecast_note",
+        "n_assays_used",
+        "warnings",
+    ):
         assert k in doc
     bad = convmon("estimate", "--batch", "NO-SUCH", "--config", str(sample_plant.config_path))
     assert bad.returncode == 2 and "NO-SUCH" in bad.stderr
@@ -68,7 +81,8 @@ def test_estimate_json_keys_and_at(sample_plant):
 
 def test_run_once_twice_adds_nothing_the_second_time(sample_plant, tmp_path):
     cfg_text = sample_plant.config_path.read_text().replace(
-        str(sample_plant.config_path.parent / "convmon.db"), str(tmp_path / "store.db"))
+        str(sample_plant.config_path.parent / "convmon.db"), str(tmp_path / "store.db")
+    )
     p = tmp_path / "c.toml"
     p.write_text(cfg_text)
     cfg = load_config(p)
@@ -111,13 +125,17 @@ def test_forecast_calibration_over_the_sample_history(sample_plant):
             est, _ = estimate_batch(cfg, tb["batch"], at, reader=reader)
             t_true = datetime.fromisoformat(tb["time_to_target"]).timestamp()
             n += 1
-            inside += (est.predicted_end_p10_s is not None
-                       and est.predicted_end_p10_s <= t_true <= est.predicted_end_p90_s)
+            inside += (
+                est.predicted_end_p10_s is not None
+                and est.predicted_end_p10_s <= t_true <= est.predicted_end_p90_s
+            )
             dx.append(abs(est.conversion - a["true_conversion"]))
     finally:
         reader.close()
     assert n >= 40
-    print(f"\ncalibration: P10-P90 holds the true end in {inside}/{n} batches; "
-          f"|X - X_true| mean {sum(dx) / n:.4f}, max {max(dx):.4f}")
+    print(
+        f"\ncalibration: P10-P90 holds the true end in {inside}/{n} batches; "
+        f"|X - X_true| mean {sum(dx) / n:.4f}, max {max(dx):.4f}"
+    )
     assert 0.60 <= inside / n <= 0.95
     assert max(dx) < 0.03

@@ -30,18 +30,33 @@ def test_sigkill_restart_leaves_the_same_store(short_plant, tmp_path):
     ticks, step = 15, 7200.0  # 30 plant-hours: batches start, run and finish
     start = end - ticks * step
     t0 = time.perf_counter()
-    clean, _ = replay_run(short_plant.db_path, short_plant.config_path, tmp_path / "clean",
-                          start_s=start, ticks=ticks, step_s=step, seed=None)
+    clean, _ = replay_run(
+        short_plant.db_path,
+        short_plant.config_path,
+        tmp_path / "clean",
+        start_s=start,
+        ticks=ticks,
+        step_s=step,
+        seed=None,
+    )
     assert clean["estimates"] and clean["batches"]
     kills = 0
     for seed in range(RUNS):
-        snap, stats = replay_run(short_plant.db_path, short_plant.config_path,
-                                 tmp_path / f"run{seed}", start_s=start, ticks=ticks,
-                                 step_s=step, seed=seed)
+        snap, stats = replay_run(
+            short_plant.db_path,
+            short_plant.config_path,
+            tmp_path / f"run{seed}",
+            start_s=start,
+            ticks=ticks,
+            step_s=step,
+            seed=seed,
+        )
         kills += stats["kills"]
         diffs = same_snapshot(clean, snap)
         assert not diffs, f"seed {seed}: {diffs[:5]}"
-    print(f"\nkill/restart: {RUNS} runs, {kills} SIGKILLs, {ticks} cycles each; final store "
-          f"equal to the uninterrupted run in all ({len(clean['estimates'])} estimates, "
-          f"{len(clean['alerts'])} alerts, {len(clean['batches'])} batches); "
-          f"{time.perf_counter() - t0:.0f} s")
+    print(
+        f"\nkill/restart: {RUNS} runs, {kills} SIGKILLs, {ticks} cycles each; final store "
+        f"equal to the uninterrupted run in all ({len(clean['estimates'])} estimates, "
+        f"{len(clean['alerts'])} alerts, {len(clean['batches'])} batches); "
+        f"{time.perf_counter() - t0:.0f} s"
+    )

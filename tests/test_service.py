@@ -14,7 +14,8 @@ from monitor.store.db import MIGRATIONS, Store, applied_migrations, migrate
 
 def _config(sample_plant, tmp_path) -> str:
     text = sample_plant.config_path.read_text().replace(
-        str(sample_plant.config_path.parent / "convmon.db"), str(tmp_path / "store.db"))
+        str(sample_plant.config_path.parent / "convmon.db"), str(tmp_path / "store.db")
+    )
     assert "interval_s = 30" in text
     p = tmp_path / "c.toml"
     p.write_text(text.replace("interval_s = 30", "interval_s = 1"))
@@ -24,31 +25,48 @@ def _config(sample_plant, tmp_path) -> str:
 def test_run_polls_on_schedule_and_stops_on_sigterm(sample_plant, tmp_path):
     cfg = _config(sample_plant, tmp_path)
     env = {**os.environ, "CONVMON_LOCK_DIR": str(tmp_path)}
-    proc = subprocess.Popen([sys.executable, "-m", "monitor", "run", "--config", cfg],
-                            stderr=subprocess.PIPE, text=True, env=env)
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "monitor", "run", "--config", cfg],
+        stderr=subprocess.PIPE,
+        text=True,
+        env=env,
+    )
     try:
         deadline = time.time() + 60
         beat = None
         while time.time() < deadline:
             time.sleep(1.0)
-            r = subprocess.run([sys.executable, "-m", "monitor", "status", "--json",
-                                "--config", cfg], capture_output=True, text=True, env=env)
+            r = subprocess.run(
+                [sys.executable, "-m", "monitor", "status", "--json", "--config", cfg],
+                capture_output=True,
+                text=True,
+                env=env,
+            )
             if r.returncode == 0:
                 beat = json.loads(r.stdout)["heartbeat"]
                 if beat["cycles"] >= 2:
                     break
         assert beat and beat["cycles"] >= 2 and beat["last_good_cycle"]
-        second = subprocess.run([sys.executable, "-m", "monitor", "run", "--once",
-                                 "--config", cfg], capture_output=True, text=True, env=env)
+        second = subprocess.run(
+            [sys.executable, "-m", "monitor", "run", "--once", "--config", cfg],
+            capture_output=True,
+            text=True,
+            env=env,
+        )
         assert second.returncode == 3 and "already" in second.stderr
         proc.send_signal(signal.SIGTERM)
         assert proc.wait(timeout=30) == 0
     finally:
         if proc.poll() is None:
             proc.kill()
-    doc = json.loads(subprocess.run([sys.executable, "-m", "monitor", "status", "--json",
-                                     "--config", cfg], capture_output=True, text=True,
-                                    env=env).stdout)
+    doc = json.loads(
+        subprocess.run(
+            [sys.executable, "-m", "monitor", "status", "--json", "--config", cfg],
+            capture_output=True,
+            text=True,
+            env=env,
+        ).stdout
+    )
     running = {b["batch"] for b in sample_plant.truth["batches"] if b["state"] == "running"}
     assert {r["batch"] for r in doc["status"]} == running
     for r in doc["status"]:
@@ -86,8 +104,22 @@ def test_watch_prints_plain_lines_off_a_terminal(sample_plant, tmp_path):
     from monitor.service import Monitor
 
     Monitor(load_config(cfg)).cycle()
-    r = subprocess.run([sys.executable, "-m", "monitor", "watch", "--config", cfg, "--count",
-                        "2", "--interval", "0.1"], capture_output=True, text=True)
+    r = subprocess.run(
+        [
+            sys.executable,
+            "-m",
+            "monitor",
+            "watch",
+            "--config",
+            cfg,
+            "--count",
+            "2",
+            "--interval",
+            "0.1",
+        ],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 0, r.stderr
     lines = r.stdout.strip().splitlines()
     running = [b["batch"] for b in sample_plant.truth["batches"] if b["state"] == "running"]

@@ -24,8 +24,9 @@ def test_soak_thirty_plant_days(tmp_path):
     from tests.fixtures_plant import build_plant
 
     plant = build_plant(tmp_path / "plant", days=31)
-    cfg_path = write_config(plant.config_path, tmp_path / "live.db", tmp_path / "store.db",
-                            tmp_path / "c.toml")
+    cfg_path = write_config(
+        plant.config_path, tmp_path / "live.db", tmp_path / "store.db", tmp_path / "c.toml"
+    )
     cfg = load_config(cfg_path)
     start = iso_to_s(plant.truth["history_start"])
     end = iso_to_s(plant.truth["export_end"])
@@ -55,14 +56,20 @@ def test_soak_thirty_plant_days(tmp_path):
     stored = {b[0]: b for b in snap["batches"]}
     final = {e[0] for e in snap["estimates"]}
     complete = [b for b in plant.truth["batches"] if b["state"] == "complete"]
-    missing = [b["batch"] for b in complete
-               if b["batch"] not in stored or stored[b["batch"]][5] != "complete"
-               or b["batch"] not in final]
+    missing = [
+        b["batch"]
+        for b in complete
+        if b["batch"] not in stored
+        or stored[b["batch"]][5] != "complete"
+        or b["batch"] not in final
+    ]
     days = (end - start) / 86_400.0
-    print(f"\nsoak: {days:.1f} plant-days in {cycles} cycles ({failed} failed) in "
-          f"{time.perf_counter() - t0:.0f} s; RSS after day 1 {rss_day1 / 2**20:.0f} MB, at the "
-          f"end {rss_end / 2**20:.0f} MB ({growth:+.1%}); {len(complete) - len(missing)}/"
-          f"{len(complete)} batches complete with a final estimate")
+    print(
+        f"\nsoak: {days:.1f} plant-days in {cycles} cycles ({failed} failed) in "
+        f"{time.perf_counter() - t0:.0f} s; RSS after day 1 {rss_day1 / 2**20:.0f} MB, at the "
+        f"end {rss_end / 2**20:.0f} MB ({growth:+.1%}); {len(complete) - len(missing)}/"
+        f"{len(complete)} batches complete with a final estimate"
+    )
     assert days >= 30
     assert failed == 0
     assert not missing, missing

@@ -12,8 +12,15 @@ from monitor.outputs.writeback import BAD_NO_DATA, WriteBack
 
 
 def _row(at_s, end=None):
-    return {"at_s": at_s, "conversion": 0.5, "conversion_sd": 0.01, "activity": 1.02,
-            "predicted_end_s": end, "p10_s": end, "p90_s": end}
+    return {
+        "at_s": at_s,
+        "conversion": 0.5,
+        "conversion_sd": 0.01,
+        "activity": 1.02,
+        "predicted_end_s": end,
+        "p10_s": end,
+        "p90_s": end,
+    }
 
 
 @pytest.fixture(params=["sqlite", "postgres", "mariadb"])
@@ -33,10 +40,22 @@ def test_writeback_is_idempotent(wb_url):
         wb.write([("R-1", _row(1_800_000_030.0, 1_800_003_600.0))])
         with wb.engine.connect() as conn:
             n = conn.execute(text(f"SELECT COUNT(*) FROM {table}")).scalar()  # noqa: S608
-            q = conn.execute(text(f"SELECT quality, value FROM {table} "  # noqa: S608
-                                  "WHERE tag = 'CM.R-2.END_P50'")).one()
-            end = conn.execute(text(f"SELECT value FROM {table} "  # noqa: S608
-                                    "WHERE tag = 'CM.R-1.END_P50'")).scalars().all()
+            q = conn.execute(
+                text(
+                    f"SELECT quality, value FROM {table} "  # noqa: S608
+                    "WHERE tag = 'CM.R-2.END_P50'"
+                )
+            ).one()
+            end = (
+                conn.execute(
+                    text(
+                        f"SELECT value FROM {table} "  # noqa: S608
+                        "WHERE tag = 'CM.R-1.END_P50'"
+                    )
+                )
+                .scalars()
+                .all()
+            )
         assert n == 18
         assert end == [1_800_003_600.0] * 2  # epoch seconds kept to the second (double)
         assert q[0] == BAD_NO_DATA and q[1] is None  # unreachable target: no value, Bad

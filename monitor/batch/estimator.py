@@ -63,9 +63,13 @@ def posterior_for(state: BatchState, at_s: float, settings: EstimatorSettings):
     """Activity posterior from the assays sampled at or before ``at_s``."""
     sel = state.assay_t_s <= at_s
     t, y = state.assay_t_s[sel], state.assay_value[sel]
-    post = activity_posterior(lambda phi: state.predict_assays(phi, t), y,
-                              state.recipe.assay_sd, prior_sd(state.kinetics),
-                              mismatch_sigma=settings.mismatch_sigma)
+    post = activity_posterior(
+        lambda phi: state.predict_assays(phi, t),
+        y,
+        state.recipe.assay_sd,
+        prior_sd(state.kinetics),
+        mismatch_sigma=settings.mismatch_sigma,
+    )
     return post, t, y
 
 
@@ -149,8 +153,9 @@ def _draws(state: BatchState, post: ActivityPosterior, settings: EstimatorSettin
     return phi, d[:, 0], d[:, 1], rng
 
 
-def estimate(state: BatchState, at_s: float, settings: EstimatorSettings | None = None,
-             *, safety=None) -> Estimate:
+def estimate(
+    state: BatchState, at_s: float, settings: EstimatorSettings | None = None, *, safety=None
+) -> Estimate:
     """Conversion at ``at_s`` with its uncertainty, and the predicted end time."""
     settings = settings or EstimatorSettings()
     if len(state.trace) == 0 or state.trace.t_s[0] > at_s:
@@ -158,21 +163,27 @@ def estimate(state: BatchState, at_s: float, settings: EstimatorSettings | None 
     warnings: list[str] = []
     post, t_a, y_a = posterior_for(state, at_s, settings)
     for i in np.flatnonzero(~post.used):
-        warnings.append(f"assay-mismatch: assay sampled at {_iso(t_a[i])} ({y_a[i]:.4g}) is "
-                        f"{abs(post.z_loo[i]):.1f} sd from the model; not used")
+        warnings.append(
+            f"assay-mismatch: assay sampled at {_iso(t_a[i])} ({y_a[i]:.4g}) is "
+            f"{abs(post.z_loo[i]):.1f} sd from the model; not used"
+        )
     if not len(t_a):
         warnings.append("no assays yet: conversion from the kinetics alone (prior activity)")
     tr = state.trace
     last = float(tr.t_s[int(np.searchsorted(tr.t_s[: len(tr)], at_s, side="right")) - 1])
     if at_s - last > settings.max_gap_s:
-        warnings.append(f"temperature stale: last sample {(at_s - last) / 60:.0f} min before "
-                        "the estimate time; last value held")
+        warnings.append(
+            f"temperature stale: last sample {(at_s - last) / 60:.0f} min before "
+            "the estimate time; last value held"
+        )
     gaps = [g for g in tr.gaps if g.end_s <= at_s]
     if gaps:
         longest = max(g.end_s - g.start_s for g in gaps)
-        warnings.append(f"temperature gap: {len(gaps)} gap(s) longer than "
-                        f"{settings.max_gap_s:.0f} s bridged by interpolation (longest "
-                        f"{longest / 60:.0f} min); uncertainty widened")
+        warnings.append(
+            f"temperature gap: {len(gaps)} gap(s) longer than "
+            f"{settings.max_gap_s:.0f} s bridged by interpolation (longest "
+            f"{longest / 60:.0f} min); uncertainty widened"
+        )
     if not state.charge_from_tag:
         warnings.append(f"no charge sample: recipe initial concentration {state.c_a0:g} mol/L used")
     if state.kinetics.law.separable:
@@ -184,20 +195,34 @@ def estimate(state: BatchState, at_s: float, settings: EstimatorSettings | None 
     target = state.recipe.target_conversion
     q = _quantiles(t_end)
     if note == "" and any(v is None for v in q):
-        note = (f"the upper band is beyond the {settings.horizon_h:g} h forecast horizon"
-                if q[1] is not None else
-                f"target X = {target:g} not reached within {settings.horizon_h:g} h under "
-                "the temperature plan")
+        note = (
+            f"the upper band is beyond the {settings.horizon_h:g} h forecast horizon"
+            if q[1] is not None
+            else f"target X = {target:g} not reached within {settings.horizon_h:g} h under "
+            "the temperature plan"
+        )
     T_now = float(np.interp(at_s, tr.t_s[: len(tr)], tr.T_K[: len(tr)]))
     est = Estimate(
-        batch=state.batch, unit=state.unit, recipe=state.recipe.name, at_s=float(at_s),
-        start_s=state.start_s, conversion=float(np.mean(X_draws)),
-        conversion_sd=float(np.std(X_draws)), activity=post.alpha_mean,
-        activity_sd=post.alpha_sd, target_conversion=target, predicted_end_s=q[1],
-        predicted_end_p10_s=q[0], predicted_end_p90_s=q[2], forecast_note=note,
-        n_assays_used=n_used, warnings=warnings, temperature_k=T_now,
+        batch=state.batch,
+        unit=state.unit,
+        recipe=state.recipe.name,
+        at_s=float(at_s),
+        start_s=state.start_s,
+        conversion=float(np.mean(X_draws)),
+        conversion_sd=float(np.std(X_draws)),
+        activity=post.alpha_mean,
+        activity_sd=post.alpha_sd,
+        target_conversion=target,
+        predicted_end_s=q[1],
+        predicted_end_p10_s=q[0],
+        predicted_end_p90_s=q[2],
+        forecast_note=note,
+        n_assays_used=n_used,
+        warnings=warnings,
+        temperature_k=T_now,
         mismatched_assays=[float(t_a[i]) for i in np.flatnonzero(~post.used)],
-        kinetics_version=state.kinetics.version)
+        kinetics_version=state.kinetics.version,
+    )
     if safety is not None:
         from .overlay import safety_overlay
 
@@ -245,8 +270,9 @@ def _forecast_separable(state, at_s, post, settings):
         w = w[post.used] if w is not None else np.full(len(t_used), 1 / len(t_used))
         th_a = state.theta_at(t_used)
         ln_a = np.log(np.maximum(th_a, 1e-300)) @ w
-        _, m1_a, v_a = _log_profile(np.interp(t_used, t, theta), np.interp(t_used, t, S1),
-                                    np.interp(t_used, t, S2))
+        _, m1_a, v_a = _log_profile(
+            np.interp(t_used, t, theta), np.interp(t_used, t, S1), np.interp(t_used, t, S2)
+        )
         m1_a, v_a = m1_a @ w, v_a @ w
         X_a = law.G_inv(np.exp(phi) * state.rate_scale() * np.exp(ln_a))
         ln_c = np.log(np.maximum(G(X_a), 1e-300)) - (ln_a + d_ea * m1_a + 0.5 * d_ea**2 * v_a)
@@ -257,9 +283,14 @@ def _forecast_separable(state, at_s, post, settings):
     X_now = G_inv(np.exp(ln_c + level(np.full(len(phi), i_now))))
     target = state.recipe.target_conversion
     if target >= law.x_max:
-        return X_now, np.full(len(phi), np.inf), (
-            f"target X = {target:g} is not reachable: the co-reactant limits conversion to "
-            f"{law.x_max:.3g}")
+        return (
+            X_now,
+            np.full(len(phi), np.inf),
+            (
+                f"target X = {target:g} is not reachable: the co-reactant limits conversion to "
+                f"{law.x_max:.3g}"
+            ),
+        )
     need = np.log(G(np.full(len(phi), target))) - ln_c
     idx = _first_crossing(level, need, len(t))
     t_end = np.full(len(phi), np.inf)
@@ -268,8 +299,9 @@ def _forecast_separable(state, at_s, post, settings):
     prev = np.maximum(i - 1, 0)
     lv_hi = level(np.where(ok, idx, 0))[ok]
     lv_lo = level(np.where(ok, np.maximum(idx - 1, 0), 0))[ok]
-    frac = np.where(lv_hi > lv_lo, (need[ok] - lv_lo) / np.where(lv_hi > lv_lo, lv_hi - lv_lo, 1),
-                    1.0)
+    frac = np.where(
+        lv_hi > lv_lo, (need[ok] - lv_lo) / np.where(lv_hi > lv_lo, lv_hi - lv_lo, 1), 1.0
+    )
     t_end[ok] = t[prev] + np.clip(frac, 0.0, 1.0) * (t[i] - t[prev])
     return X_now, t_end, ""
 
@@ -282,8 +314,16 @@ def _forecast_reversible(state, at_s, post, settings):
     t_f, T_f = _future_profile(state, at_s, horizon_s)
     step = 4  # 4-minute steps are ample for a linear law with minute-scale dynamics
     t_f, T_f = t_f[::step], T_f[::step]
-    C, A = reversible_segments(t_f, T_f, kin.ea_j_per_mol, kin.t_ref_k, kin.k_ref, law.k_eq_ref,
-                               law.dh_rxn_j_per_mol, law.theta_r)
+    C, A = reversible_segments(
+        t_f,
+        T_f,
+        kin.ea_j_per_mol,
+        kin.t_ref_k,
+        kin.k_ref,
+        law.k_eq_ref,
+        law.dh_rxn_j_per_mol,
+        law.theta_r,
+    )
     traj = step_reversible(X_at_nodes, np.exp(state.phi_grid), C, A)  # (steps, nodes)
     target = state.recipe.target_conversion
     t_node = np.full(len(state.phi_grid), np.inf)
@@ -311,8 +351,10 @@ def _forecast_reversible(state, at_s, post, settings):
     note = ""
     x_eq_end = state.equilibrium_conversion(T_f[-1])
     if target >= x_eq_end and not finite.any():
-        note = (f"target X = {target:g} is above the equilibrium conversion {x_eq_end:.3f} "
-                f"at the plan's final temperature ({T_f[-1] - 273.15:.1f} degC)")
+        note = (
+            f"target X = {target:g} is above the equilibrium conversion {x_eq_end:.3f} "
+            f"at the plan's final temperature ({T_f[-1] - 273.15:.1f} degC)"
+        )
     return X_now, t_end, note
 
 

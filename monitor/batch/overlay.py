@@ -12,8 +12,12 @@ def safety_overlay(state, est, safety) -> dict:
     ``safety`` is a `monitor.config.SafetyConfig` (SI). The heat-release rate for
     TMR_ad is that of the desired reaction at the current state and temperature.
     """
-    dT = adiabatic_temperature_rise(safety.heat_of_reaction_j_per_mol, state.c_a0,
-                                    safety.density_kg_per_m3, safety.heat_capacity_j_per_kg_k)
+    dT = adiabatic_temperature_rise(
+        safety.heat_of_reaction_j_per_mol,
+        state.c_a0,
+        safety.density_kg_per_m3,
+        safety.heat_capacity_j_per_kg_k,
+    )
     T = est.temperature_k
     m = float(mtsr(T, est.conversion, dT))
     kin = state.kinetics

@@ -69,9 +69,16 @@ def _log_weights(loglik: np.ndarray, phi: np.ndarray, prior_sd: float) -> np.nda
     return lw - lw.max()
 
 
-def activity_posterior(predict: Callable[[np.ndarray], np.ndarray], y: np.ndarray, sd: float,
-                       prior_sd: float, *, mismatch_sigma: float = 4.0, n_grid: int = 1201,
-                       n_fine: int = 241) -> ActivityPosterior:
+def activity_posterior(
+    predict: Callable[[np.ndarray], np.ndarray],
+    y: np.ndarray,
+    sd: float,
+    prior_sd: float,
+    *,
+    mismatch_sigma: float = 4.0,
+    n_grid: int = 1201,
+    n_fine: int = 241,
+) -> ActivityPosterior:
     """Grid posterior of ``ln alpha``.
 
     Parameters

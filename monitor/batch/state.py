@@ -34,8 +34,15 @@ class RecipeModel:
 
     @classmethod
     def from_config(cls, recipe, kinetics: Kinetics) -> RecipeModel:
-        return cls(recipe.name, kinetics, recipe.target_conversion, recipe.assay_kind,
-                   recipe.assay_sd, recipe.initial_concentration, recipe.temperature_plan)
+        return cls(
+            recipe.name,
+            kinetics,
+            recipe.target_conversion,
+            recipe.assay_kind,
+            recipe.assay_sd,
+            recipe.initial_concentration,
+            recipe.temperature_plan,
+        )
 
 
 @dataclass
@@ -73,9 +80,13 @@ class BatchState:
     def add_temperature(self, t_s, T_K) -> None:
         """Add temperature samples [s], [K] (samples before the start are ignored)."""
         t_s = np.asarray(t_s, dtype=float)
-        if (len(self.trace) and 0 < len(t_s) <= 32 and self.kinetics.law.separable
-                and (self.end_s is None or t_s[-1] <= self.end_s)
-                and self.trace._append_few(t_s.tolist(), np.asarray(T_K, float).tolist())):
+        if (
+            len(self.trace)
+            and 0 < len(t_s) <= 32
+            and self.kinetics.law.separable
+            and (self.end_s is None or t_s[-1] <= self.end_s)
+            and self.trace._append_few(t_s.tolist(), np.asarray(T_K, float).tolist())
+        ):
             return  # the usual poll: samples after the last, inside the window
         keep = t_s >= self.start_s
         if self.end_s is not None:
@@ -95,8 +106,16 @@ class BatchState:
         # long intervals (gaps, coarse traces) are cut: the step freezes X* per interval
         scale = max(abs(kin.ea_j_per_mol), abs(law.dh_rxn_j_per_mol), 1.0)
         t_f, T_f, at = refine_trace(tr.t_s[i0:n], tr.T_K[i0:n], scale, kin.t_ref_k)
-        C, A = reversible_segments(t_f, T_f, kin.ea_j_per_mol, kin.t_ref_k,
-                                   kin.k_ref, law.k_eq_ref, law.dh_rxn_j_per_mol, law.theta_r)
+        C, A = reversible_segments(
+            t_f,
+            T_f,
+            kin.ea_j_per_mol,
+            kin.t_ref_k,
+            kin.k_ref,
+            law.k_eq_ref,
+            law.dh_rxn_j_per_mol,
+            law.theta_r,
+        )
         steps = step_reversible(x0, np.exp(self.phi_grid), C, A)[at[1:] - 1]
         self.x_grid = np.vstack([self.x_grid[:i0], x0[None, :], steps])
 
@@ -168,17 +187,24 @@ class BatchState:
                 hi = self.x_grid[min(i + 1, n - 1)]
                 nodes[j] = self.x_grid[i] + np.clip(frac, 0.0, 1.0) * (hi - self.x_grid[i])
             else:
-                C, A = reversible_segments([ts[-1], t], [tr.T_K[n - 1]] * 2, kin.ea_j_per_mol,
-                                           kin.t_ref_k, kin.k_ref, law.k_eq_ref,
-                                           law.dh_rxn_j_per_mol, law.theta_r)
+                C, A = reversible_segments(
+                    [ts[-1], t],
+                    [tr.T_K[n - 1]] * 2,
+                    kin.ea_j_per_mol,
+                    kin.t_ref_k,
+                    kin.k_ref,
+                    law.k_eq_ref,
+                    law.dh_rxn_j_per_mol,
+                    law.theta_r,
+                )
                 nodes[j] = step_reversible(self.x_grid[-1], np.exp(self.phi_grid), C, A)[-1]
-        return np.stack([np.interp(phi, self.phi_grid, nodes[j]) for j in range(len(t_s))],
-                        axis=1)
+        return np.stack([np.interp(phi, self.phi_grid, nodes[j]) for j in range(len(t_s))], axis=1)
 
     def equilibrium_conversion(self, T_K) -> float:
         law, kin = self.kinetics.law, self.kinetics
-        return float(law.x_eq(equilibrium_constant(T_K, law.k_eq_ref, law.dh_rxn_j_per_mol,
-                                                   kin.t_ref_k)))
+        return float(
+            law.x_eq(equilibrium_constant(T_K, law.k_eq_ref, law.dh_rxn_j_per_mol, kin.t_ref_k))
+        )
 
     def predict_assays(self, phi: np.ndarray, t_s: np.ndarray) -> np.ndarray:
         """Predicted assays (m phi values x n times) in assay units."""

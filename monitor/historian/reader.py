@@ -37,9 +37,14 @@ class _RowProgress:
             from rich.console import Console
             from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
 
-            self.bar = Progress(SpinnerColumn(), TextColumn(label),
-                                TextColumn("{task.completed:,.0f} rows"), TimeElapsedColumn(),
-                                console=Console(stderr=True), transient=True)
+            self.bar = Progress(
+                SpinnerColumn(),
+                TextColumn(label),
+                TextColumn("{task.completed:,.0f} rows"),
+                TimeElapsedColumn(),
+                console=Console(stderr=True),
+                transient=True,
+            )
             self.task = self.bar.add_task(label, total=None)
 
     def __enter__(self):
@@ -62,8 +67,9 @@ class HistorianReader:
     def __init__(self, config: Config, *, engine=None):
         self.cfg = config
         h = self.h = config.historian
-        self.engine = engine or make_engine(h.url, connect_timeout_s=h.connect_timeout_s,
-                                            statement_timeout_s=h.statement_timeout_s)
+        self.engine = engine or make_engine(
+            h.url, connect_timeout_s=h.connect_timeout_s, statement_timeout_s=h.statement_timeout_s
+        )
         self.samples, self.events = self._retry(lambda: map_schema(self.engine, h), "schema")
         self._units_by_tag = {}
         for u in config.units:
@@ -90,8 +96,9 @@ class HistorianReader:
 
         return self._retry(run, "query")
 
-    def _stream(self, stmt, progress_label: str | None = None, *,
-                context_below_seq: int | None = None):
+    def _stream(
+        self, stmt, progress_label: str | None = None, *, context_below_seq: int | None = None
+    ):
         """Rows in chunks of ``fetch_rows`` (server-side cursor where the driver has one).
 
         ``context_below_seq``: rows up to this seq were read earlier (a poll); rows of a
@@ -101,10 +108,14 @@ class HistorianReader:
 
         def run():
             chunks, pending = [], []
-            with self.engine.connect() as conn, _cyclic_gc_paused(), \
-                    _RowProgress(progress_label) as progress:
-                result = conn.execution_options(stream_results=True,
-                                                yield_per=self.h.fetch_rows).execute(stmt)
+            with (
+                self.engine.connect() as conn,
+                _cyclic_gc_paused(),
+                _RowProgress(progress_label) as progress,
+            ):
+                result = conn.execution_options(
+                    stream_results=True, yield_per=self.h.fetch_rows
+                ).execute(stmt)
                 for part in result.partitions(self.h.fetch_rows):
                     chunks.append(self._normalise_chunk(part, pending, len(chunks)))
                     progress.advance(len(part))
@@ -128,18 +139,24 @@ class HistorianReader:
             s, zone = self.samples, self.h.naive_timezone
             lo = to_epoch_seconds([min(raw)], zone, seq=[0])[0][0]  # first-pass reading
             hi = to_epoch_seconds([max(raw)], zone, seq=[0])[0][0]
-            rows = self._fetch(select(s["tag"], s["time"], s["seq"]).where(
-                s["tag"].in_(sorted(set(tags.tolist()))), s["time"] >= self._bound(lo, True),
-                s["time"] <= self._bound(hi, False), s["seq"] <= context_below_seq))
+            rows = self._fetch(
+                select(s["tag"], s["time"], s["seq"]).where(
+                    s["tag"].in_(sorted(set(tags.tolist()))),
+                    s["time"] >= self._bound(lo, True),
+                    s["time"] <= self._bound(hi, False),
+                    s["seq"] <= context_below_seq,
+                )
+            )
             tags = np.concatenate([tags, np.array([r[0] for r in rows], dtype=object)])
             seq = np.concatenate([seq, np.array([r[2] for r in rows], dtype=np.int64)])
             raw += [r[1] for r in rows]
-        t, why = to_epoch_seconds(np.array(raw, dtype=object), self.h.naive_timezone, seq=seq,
-                                  group=tags)
+        t, why = to_epoch_seconds(
+            np.array(raw, dtype=object), self.h.naive_timezone, seq=seq, group=tags
+        )
         k = 0
         for i, pos, _ in pending:
-            chunks[i][1][pos] = t[k:k + len(pos)]
-            chunks[i][5][pos] = why[k:k + len(pos)]
+            chunks[i][1][pos] = t[k : k + len(pos)]
+            chunks[i][5][pos] = why[k : k + len(pos)]
             k += len(pos)
 
     def _detect_time_style(self) -> str | None:
@@ -173,8 +190,7 @@ class HistorianReader:
         margin = 15 * 3600.0 if style.startswith("text-aware") else 2 * 3600.0
         if style == "epoch" or style == "datetime-aware":
             margin = 1.0
-        return format_bound(t_s - margin if lower else t_s + margin, style,
-                            self.h.naive_timezone)
+        return format_bound(t_s - margin if lower else t_s + margin, style, self.h.naive_timezone)
 
     # ------------------------------------------------------------ batches
     def batches(self, unit: str | None = None, recipe: str | None = None):
@@ -190,20 +206,25 @@ class HistorianReader:
         if not rows:
             return [], problems
         seq = [r[5] for r in rows] if ev["seq"] is not None else None
-        t, why = to_epoch_seconds([r[4] for r in rows], self.h.naive_timezone, seq=seq,
-                                  group=[r[1] for r in rows])
+        t, why = to_epoch_seconds(
+            [r[4] for r in rows], self.h.naive_timezone, seq=seq, group=[r[1] for r in rows]
+        )
         starts: dict = {}
         ends: dict = defaultdict(list)
         for r, ts, w in zip(rows, t, why, strict=True):
             bid = str(r[0])
             if w is not None or not math.isfinite(ts):
-                problems.append(BatchProblem(f"batch {bid}: {r[3]} event time {r[4]!r} "
-                                             f"unusable ({w})", bid, r[1]))
+                problems.append(
+                    BatchProblem(
+                        f"batch {bid}: {r[3]} event time {r[4]!r} unusable ({w})", bid, r[1]
+                    )
+                )
                 continue
             if r[3] == self.h.start_event:
                 if bid in starts:
-                    problems.append(BatchProblem(f"batch {bid}: two start events; the first "
-                                                 "is used", bid, r[1]))
+                    problems.append(
+                        BatchProblem(f"batch {bid}: two start events; the first is used", bid, r[1])
+                    )
                     continue
                 starts[bid] = (str(r[1]), str(r[2]), float(ts))
             else:
@@ -214,18 +235,25 @@ class HistorianReader:
             if ends.get(bid):
                 good = [e for e in ends[bid] if e >= t0]
                 if len(good) < len(ends[bid]):
-                    problems.append(BatchProblem(f"batch {bid}: end event before its start; "
-                                                 "ignored", bid, u))
+                    problems.append(
+                        BatchProblem(f"batch {bid}: end event before its start; ignored", bid, u)
+                    )
                 if len(good) > 1:
-                    problems.append(BatchProblem(f"batch {bid}: {len(good)} end events; the "
-                                                 "first is used", bid, u))
+                    problems.append(
+                        BatchProblem(
+                            f"batch {bid}: {len(good)} end events; the first is used", bid, u
+                        )
+                    )
                 end = min(good) if good else None
             out.append(Batch(bid, u, rec, t0, end))
         for bid in ends:
             if bid not in starts:
                 problems.append(BatchProblem(f"batch {bid}: end event without a start", bid))
-        out = [b for b in out if (unit is None or b.unit == unit)
-               and (recipe is None or b.recipe == recipe)]
+        out = [
+            b
+            for b in out
+            if (unit is None or b.unit == unit) and (recipe is None or b.recipe == recipe)
+        ]
         out.sort(key=lambda b: (b.start_s, b.batch))
         return out, problems
 
@@ -251,8 +279,14 @@ class HistorianReader:
         """
         if not rows:
             e = np.empty(0)
-            return (np.empty(0, dtype=object), e, e, np.empty(0, bool), None,
-                    np.empty(0, dtype=object))
+            return (
+                np.empty(0, dtype=object),
+                e,
+                e,
+                np.empty(0, bool),
+                None,
+                np.empty(0, dtype=object),
+            )
         n = len(rows)
         tag_col, times, value_col, quality_col, seq_col = zip(*rows, strict=True)
         # one string object per tag, not one per row (memory on long backfills)
@@ -275,8 +309,9 @@ class HistorianReader:
                 pending.append((index, repeated, [times[i] for i in repeated]))
         return tags, t, value, good, seq, why
 
-    def _clean(self, chunks, quality: QualitySummary, start_s=None, end_s=None,
-               key_seen: set | None = None) -> dict[str, TagSamples]:
+    def _clean(
+        self, chunks, quality: QualitySummary, start_s=None, end_s=None, key_seen: set | None = None
+    ) -> dict[str, TagSamples]:
         """Exclusions (counted), unit conversion, de-duplication on (tag, ts)."""
         by_tag: dict[str, list] = defaultdict(list)
         for tags, t, value, good, seq, why in chunks:
@@ -287,7 +322,7 @@ class HistorianReader:
             by_code = np.argsort(codes, kind="stable")  # keeps insertion order within a tag
             cuts = np.searchsorted(codes[by_code], np.arange(len(names) + 1))
             for k, tag in enumerate(names):
-                m = order[by_code[cuts[k]:cuts[k + 1]]]
+                m = order[by_code[cuts[k] : cuts[k + 1]]]
                 by_tag[str(tag)].append((t[m], value[m], good[m], why[m]))
         out = {}
         for tag, parts in by_tag.items():
@@ -333,8 +368,14 @@ class HistorianReader:
             out[tag] = TagSamples(tag, t[first], v[first])
         return out
 
-    def read_tags(self, tags, start_s: float | None = None, end_s: float | None = None,
-                  *, progress_label: str | None = None):
+    def read_tags(
+        self,
+        tags,
+        start_s: float | None = None,
+        end_s: float | None = None,
+        *,
+        progress_label: str | None = None,
+    ):
         """Good samples of ``tags`` within [start_s, end_s] (streamed; bounded memory)."""
         s = self.samples
         stmt = self._sample_select().where(s["tag"].in_(list(tags)))
@@ -376,8 +417,9 @@ class HistorianReader:
         """Temperature [K], assays and charge of one batch, up to ``until_s``."""
         u = self.cfg.unit(batch.unit)
         if u is None:
-            raise DataQualityError(f"batch {batch.batch}: unit {batch.unit!r} is not in the "
-                                   "configuration ([[units]])")
+            raise DataQualityError(
+                f"batch {batch.batch}: unit {batch.unit!r} is not in the configuration ([[units]])"
+            )
         end = batch.end_s if until_s is None else until_s
         if batch.end_s is not None and end is not None:
             end = min(end, batch.end_s)
@@ -396,8 +438,9 @@ class HistorianReader:
             s = self.samples
             # just below the first row at or after since_s: a late row (old time, high
             # seq) must not move the start past rows of the period asked for
-            first = self._fetch(select(func.min(s["seq"])).where(
-                s["time"] >= self._bound(since_s, True)))[0][0]
+            first = self._fetch(
+                select(func.min(s["seq"])).where(s["time"] >= self._bound(since_s, True))
+            )[0][0]
             if first is not None:
                 last = int(first) - 1
             else:  # nothing since then yet: start after the newest row
@@ -449,13 +492,17 @@ class HistorianReader:
             kept.append(tuple(a[fresh] for a in chunk))
             again.append(tuple(a[~fresh] for a in chunk))
         # a row re-sent within the re-read window repeats a sample delivered before
-        seen = {(tag, float(x)) for tag, x_s in self._clean(again, QualitySummary()).items()
-                for x in x_s.t_s}
+        seen = {
+            (tag, float(x))
+            for tag, x_s in self._clean(again, QualitySummary()).items()
+            for x in x_s.t_s
+        }
         samples = self._clean(kept, quality, key_seen=seen or None)
         keep_from = new_max - window
         recent = sorted(q for q in recent | delivered if q > keep_from)
-        return PollResult(samples, {"mode": "seq", "seq": new_max, "recent": recent}, quality,
-                          rows_read)
+        return PollResult(
+            samples, {"mode": "seq", "seq": new_max, "recent": recent}, quality, rows_read
+        )
 
     def _poll_time(self, wm: dict, tags) -> PollResult:
         s = self.samples
@@ -476,15 +523,13 @@ class HistorianReader:
         start = None if t_last is None else t_last - max(lag, self.h.late_window_s)
         samples = self._clean(chunks, quality, start, None, key_seen=seen)
         rows_read = sum(len(c[0]) for c in chunks)
-        t_max = max([t_last or -math.inf] + [float(x.t_s[-1]) for x in samples.values() if
-                                             len(x)])
+        t_max = max([t_last or -math.inf] + [float(x.t_s[-1]) for x in samples.values() if len(x)])
         t_max = None if t_max == -math.inf else t_max
         horizon = (t_max or 0) - max(lag, self.h.late_window_s)
         keys = [[k[0], k[1]] for k in seen if k[1] >= horizon]
         for tag, x in samples.items():
             keys.extend([tag, float(t)] for t in x.t_s if t >= horizon)
-        return PollResult(samples, {"mode": "time", "t_s": t_max, "keys": keys}, quality,
-                          rows_read)
+        return PollResult(samples, {"mode": "time", "t_s": t_max, "keys": keys}, quality, rows_read)
 
     def _seq_leads_an_index(self) -> bool:
         """Whether rows can be found by a range of seq (its primary key or an index)."""

@@ -32,8 +32,7 @@ def _reflect(engine: Engine, name: str, key: str) -> Table:
     try:
         return Table(name, MetaData(), autoload_with=engine, schema=schema)
     except NoSuchTableError:
-        raise SchemaError(f"table {name!r} not found in the historian database",
-                          key=key) from None
+        raise SchemaError(f"table {name!r} not found in the historian database", key=key) from None
 
 
 def _map(engine, table_name: str, key: str, columns: dict) -> MappedTable:
@@ -46,9 +45,11 @@ def _map(engine, table_name: str, key: str, columns: dict) -> MappedTable:
             continue
         found = table.columns.get(col) if col in table.columns else actual.get(col.lower())
         if found is None:
-            raise SchemaError(f"column {col!r} not found in table {table_name!r} (has: "
-                              f"{', '.join(c.name for c in table.columns)})",
-                              key=f"{key.rsplit('_', 1)[0]}_columns.{role}")
+            raise SchemaError(
+                f"column {col!r} not found in table {table_name!r} (has: "
+                f"{', '.join(c.name for c in table.columns)})",
+                key=f"{key.rsplit('_', 1)[0]}_columns.{role}",
+            )
         mapped[role] = found
     return MappedTable(table, mapped)
 
@@ -56,10 +57,23 @@ def _map(engine, table_name: str, key: str, columns: dict) -> MappedTable:
 def map_schema(engine: Engine, h: HistorianConfig) -> tuple[MappedTable, MappedTable]:
     """Reflect and check the samples and events tables named in ``h``."""
     sc, ec = h.samples_columns, h.events_columns
-    samples = _map(engine, h.samples_table, "historian.samples_table",
-                   {"seq": sc.seq, "tag": sc.tag, "time": sc.time, "value": sc.value,
-                    "quality": sc.quality})
-    events = _map(engine, h.events_table, "historian.events_table",
-                  {"seq": ec.seq, "batch": ec.batch, "unit": ec.unit, "recipe": ec.recipe,
-                   "event": ec.event, "time": ec.time})
+    samples = _map(
+        engine,
+        h.samples_table,
+        "historian.samples_table",
+        {"seq": sc.seq, "tag": sc.tag, "time": sc.time, "value": sc.value, "quality": sc.quality},
+    )
+    events = _map(
+        engine,
+        h.events_table,
+        "historian.events_table",
+        {
+            "seq": ec.seq,
+            "batch": ec.batch,
+            "unit": ec.unit,
+            "recipe": ec.recipe,
+            "event": ec.event,
+            "time": ec.time,
+        },
+    )
     return samples, events

@@ -55,9 +55,9 @@ def _fixed_width_parts(values: np.ndarray):
         cut, off = 5, (-1 if first[-5] == "-" else 1) * (int(first[-4:-2]) * 60 + int(first[-2:]))
     else:
         cut, off = 0, np.nan
-    if cut and not (chars[:, width - cut:] == chars[0, width - cut:]).all():
+    if cut and not (chars[:, width - cut :] == chars[0, width - cut :]).all():
         return None
-    base = np.ascontiguousarray(chars[:, :width - cut]).view(f"<U{width - cut}").ravel()
+    base = np.ascontiguousarray(chars[:, : width - cut]).view(f"<U{width - cut}").ravel()
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("error")  # numpy reads an offset left in the text: not here
@@ -83,13 +83,17 @@ def _text_to_parts(values: np.ndarray):
     if has6.any():
         base[has6] = sr[has6].str[:-6]
         t = tail6[has6]
-        off[has6] = (np.where(t.str[0] == "-", -1, 1)
-                     * (t.str[1:3].astype(int) * 60 + t.str[4:6].astype(int))).to_numpy()
+        off[has6] = (
+            np.where(t.str[0] == "-", -1, 1)
+            * (t.str[1:3].astype(int) * 60 + t.str[4:6].astype(int))
+        ).to_numpy()
     if has5.any():
         base[has5] = sr[has5].str[:-5]
         t = tail5[has5]
-        off[has5] = (np.where(t.str[0] == "-", -1, 1)
-                     * (t.str[1:3].astype(int) * 60 + t.str[3:5].astype(int))).to_numpy()
+        off[has5] = (
+            np.where(t.str[0] == "-", -1, 1)
+            * (t.str[1:3].astype(int) * 60 + t.str[3:5].astype(int))
+        ).to_numpy()
     if is_z.any():
         base[is_z] = sr[is_z].str[:-1]
         off[is_z] = 0.0
@@ -118,10 +122,15 @@ def _localize(naive_us: np.ndarray, zone: str, seq, group):
             t[amb] = np.nan
         else:
             pos = np.flatnonzero(amb)
-            df = pd.DataFrame({"pos": pos, "seq": np.asarray(seq)[pos],
-                               "g": np.asarray(group, dtype=object)[pos] if group is not None
-                               else 0, "naive": naive_us[pos],
-                               "day": naive_us[pos] // 86_400_000_000})
+            df = pd.DataFrame(
+                {
+                    "pos": pos,
+                    "seq": np.asarray(seq)[pos],
+                    "g": np.asarray(group, dtype=object)[pos] if group is not None else 0,
+                    "naive": naive_us[pos],
+                    "day": naive_us[pos] // 86_400_000_000,
+                }
+            )
             df = df.sort_values(["g", "day", "seq"], kind="stable")
             keys = [df["g"], df["day"]]
             prev_max = df.groupby(keys)["naive"].cummax().groupby(keys).shift(1)
@@ -163,18 +172,26 @@ def to_epoch_seconds(values, naive_zone: str, *, seq=None, group=None):
     reason = np.full(n, None, dtype=object)
     # Decimal: MySQL/MariaDB DOUBLE and NUMERIC columns reflect as Decimal-returning types
     if isinstance(first, int | float | Decimal | np.integer | np.floating) and not isinstance(
-            first, bool):
+        first, bool
+    ):
         t = np.asarray(arr, dtype=float)
         reason[~np.isfinite(t)] = BAD_TIME
         return t, reason
     if isinstance(first, str):
         naive_us, off = _text_to_parts(arr)
     elif isinstance(first, datetime | pd.Timestamp):
-        off = np.array([np.nan if v is None or v.tzinfo is None
-                        else v.utcoffset().total_seconds() / 60 for v in arr])
+        off = np.array(
+            [
+                np.nan if v is None or v.tzinfo is None else v.utcoffset().total_seconds() / 60
+                for v in arr
+            ]
+        )
         naive = [None if v is None else v.replace(tzinfo=None) for v in arr]
-        naive_us = np.asarray(pd.to_datetime(pd.Series(naive, dtype=object), errors="coerce")
-                              .to_numpy(dtype="datetime64[us]")).astype(np.int64)
+        naive_us = np.asarray(
+            pd.to_datetime(pd.Series(naive, dtype=object), errors="coerce").to_numpy(
+                dtype="datetime64[us]"
+            )
+        ).astype(np.int64)
     else:
         naive_us, off = _text_to_parts(np.array([str(v) for v in arr], dtype=object))
     bad = naive_us == np.iinfo(np.int64).min
@@ -202,8 +219,11 @@ def format_bound(t_s: float, style: str, zone: str) -> object:
         return t_s
     if style.startswith("text"):
         sep = "T" if style.endswith("T") else " "
-        local = dt.astimezone(ZoneInfo(zone)).replace(tzinfo=None) if style.startswith(
-            "text-naive") else dt.replace(tzinfo=None)
+        local = (
+            dt.astimezone(ZoneInfo(zone)).replace(tzinfo=None)
+            if style.startswith("text-naive")
+            else dt.replace(tzinfo=None)
+        )
         return local.strftime(f"%Y-%m-%d{sep}%H:%M:%S")
     if style == "datetime-aware":
         return dt

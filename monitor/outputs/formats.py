@@ -42,21 +42,38 @@ def dumps(doc) -> str:
 
 
 def batch_json(b, counts: tuple[int, int]) -> dict:
-    return {"batch": b.batch, "unit": b.unit, "recipe": b.recipe, "start": iso(b.start_s),
-            "end": iso(b.end_s), "state": b.state, "n_temperature": counts[0],
-            "n_assays": counts[1]}
+    return {
+        "batch": b.batch,
+        "unit": b.unit,
+        "recipe": b.recipe,
+        "start": iso(b.start_s),
+        "end": iso(b.end_s),
+        "state": b.state,
+        "n_temperature": counts[0],
+        "n_assays": counts[1],
+    }
 
 
 def estimate_json(e) -> dict:
     doc = {
-        "batch": e.batch, "unit": e.unit, "recipe": e.recipe, "at": iso(e.at_s),
-        "start": iso(e.start_s), "conversion": e.conversion, "conversion_sd": e.conversion_sd,
-        "activity": e.activity, "activity_sd": e.activity_sd,
-        "target_conversion": e.target_conversion, "predicted_end": iso(e.predicted_end_s),
+        "batch": e.batch,
+        "unit": e.unit,
+        "recipe": e.recipe,
+        "at": iso(e.at_s),
+        "start": iso(e.start_s),
+        "conversion": e.conversion,
+        "conversion_sd": e.conversion_sd,
+        "activity": e.activity,
+        "activity_sd": e.activity_sd,
+        "target_conversion": e.target_conversion,
+        "predicted_end": iso(e.predicted_end_s),
         "predicted_end_p10": iso(e.predicted_end_p10_s),
-        "predicted_end_p90": iso(e.predicted_end_p90_s), "forecast_note": e.forecast_note,
-        "n_assays_used": e.n_assays_used, "warnings": list(e.warnings),
-        "temperature_k": e.temperature_k, "kinetics_version": e.kinetics_version,
+        "predicted_end_p90": iso(e.predicted_end_p90_s),
+        "forecast_note": e.forecast_note,
+        "n_assays_used": e.n_assays_used,
+        "warnings": list(e.warnings),
+        "temperature_k": e.temperature_k,
+        "kinetics_version": e.kinetics_version,
     }
     doc.update(e.safety)
     return doc
@@ -64,23 +81,28 @@ def estimate_json(e) -> dict:
 
 def estimate_text(e, zone: str) -> str:
     """A short summary an operator can read at a glance."""
-    lines = [f"batch {e.batch} on {e.unit} ({e.recipe}), at {local(e.at_s, zone)}"
-             f" [{iso(e.at_s)}]",
-             f"  conversion   {e.conversion:.3f} ± {e.conversion_sd:.3f}"
-             f"   (target {e.target_conversion:g}; activity {e.activity:.3f} ± "
-             f"{e.activity_sd:.3f}; {e.n_assays_used} assay(s) used)"]
+    lines = [
+        f"batch {e.batch} on {e.unit} ({e.recipe}), at {local(e.at_s, zone)} [{iso(e.at_s)}]",
+        f"  conversion   {e.conversion:.3f} ± {e.conversion_sd:.3f}"
+        f"   (target {e.target_conversion:g}; activity {e.activity:.3f} ± "
+        f"{e.activity_sd:.3f}; {e.n_assays_used} assay(s) used)",
+    ]
     if e.temperature_k is not None:
         lines.append(f"  temperature  {from_kelvin(e.temperature_k, 'degC'):.1f} degC")
     if e.predicted_end_s is not None:
         lines.append(f"  target at    {local(e.predicted_end_s, zone)}  [{iso(e.predicted_end_s)}]")
-        lines.append(f"  P10 - P90    {local(e.predicted_end_p10_s, zone)}  to  "
-                     f"{local(e.predicted_end_p90_s, zone)}")
+        lines.append(
+            f"  P10 - P90    {local(e.predicted_end_p10_s, zone)}  to  "
+            f"{local(e.predicted_end_p90_s, zone)}"
+        )
     if e.forecast_note:
         lines.append(f"  note         {e.forecast_note}")
     if e.safety:
         s = e.safety
-        lines.append(f"  thermal      MTSR {from_kelvin(s['mtsr_k'], 'degC'):.1f} ± "
-                     f"{s['mtsr_sd_k']:.1f} K, dT_ad {s['delta_t_ad_k']:.1f} K, "
-                     f"class {s['criticality_class']} (advisory only)")
+        lines.append(
+            f"  thermal      MTSR {from_kelvin(s['mtsr_k'], 'degC'):.1f} ± "
+            f"{s['mtsr_sd_k']:.1f} K, dT_ad {s['delta_t_ad_k']:.1f} K, "
+            f"class {s['criticality_class']} (advisory only)"
+        )
     lines.extend(f"  warning      {w}" for w in e.warnings)
     return "\n".join(lines)

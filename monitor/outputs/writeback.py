@@ -29,9 +29,14 @@ from ..errors import SchemaError, StoreError
 from .formats import iso
 
 BAD_NO_DATA = 0x809B0000  # OPC UA StatusCode Bad_NoData (OPC 10000-4 status codes; from memory)
-FIELDS = {"CONVERSION": "conversion", "CONVERSION_SD": "conversion_sd",
-          "ACTIVITY": "activity", "END_P50": "predicted_end_s", "END_P10": "p10_s",
-          "END_P90": "p90_s"}
+FIELDS = {
+    "CONVERSION": "conversion",
+    "CONVERSION_SD": "conversion_sd",
+    "ACTIVITY": "activity",
+    "END_P50": "predicted_end_s",
+    "END_P10": "p10_s",
+    "END_P90": "p90_s",
+}
 
 
 class WriteBack:
@@ -41,19 +46,27 @@ class WriteBack:
         self.cfg = cfg
         self.engine = create_engine(cfg.url, pool_pre_ping=True)
         meta = MetaData()
-        self.table = Table(cfg.table, meta, Column("tag", String(128), nullable=False),
-                           # double precision: end times are epoch seconds
-                           Column("ts", String(40), nullable=False), Column("value", Double),
-                           Column("quality", BigInteger),
-                           PrimaryKeyConstraint("tag", "ts", name=f"pk_{cfg.table}"))
+        self.table = Table(
+            cfg.table,
+            meta,
+            Column("tag", String(128), nullable=False),
+            # double precision: end times are epoch seconds
+            Column("ts", String(40), nullable=False),
+            Column("value", Double),
+            Column("quality", BigInteger),
+            PrimaryKeyConstraint("tag", "ts", name=f"pk_{cfg.table}"),
+        )
         try:
             insp = inspect(self.engine)
             if insp.has_table(cfg.table):
                 have = {c["name"] for c in insp.get_columns(cfg.table)}
                 missing = {"tag", "ts", "value", "quality"} - have
                 if missing:
-                    raise SchemaError(f"write-back table {cfg.table!r} lacks column(s) "
-                                      f"{', '.join(sorted(missing))}", key="writeback.table")
+                    raise SchemaError(
+                        f"write-back table {cfg.table!r} lacks column(s) "
+                        f"{', '.join(sorted(missing))}",
+                        key="writeback.table",
+                    )
             else:
                 meta.create_all(self.engine)
         except SQLAlchemyError as exc:
@@ -64,10 +77,15 @@ class WriteBack:
         out = []
         for suffix, key in FIELDS.items():
             v = est_row.get(key)
-            out.append({"tag": f"{self.cfg.tag_prefix}.{unit}.{suffix}", "ts": ts,
-                        "value": None if v is None else float(v),
-                        # OPC UA: Good = 0; no value (target unreachable) = Bad_NoData
-                        "quality": 0 if v is not None else BAD_NO_DATA})
+            out.append(
+                {
+                    "tag": f"{self.cfg.tag_prefix}.{unit}.{suffix}",
+                    "ts": ts,
+                    "value": None if v is None else float(v),
+                    # OPC UA: Good = 0; no value (target unreachable) = Bad_NoData
+                    "quality": 0 if v is not None else BAD_NO_DATA,
+                }
+            )
         return out
 
     def write(self, items: list[tuple[str, dict]]) -> int:

@@ -153,8 +153,10 @@ class _Problem:
             last = float(ta.max() - start)
             if last > t[-1]:
                 if last - t[-1] > 300.0:
-                    warnings.append(f"{s.name}: assays run {(last - t[-1]) / 60:.0f} min past "
-                                    "the last temperature sample; its last value is held")
+                    warnings.append(
+                        f"{s.name}: assays run {(last - t[-1]) / 60:.0f} min past "
+                        "the last temperature sample; its last value is held"
+                    )
                 t, T = np.concatenate([t, [last]]), np.concatenate([T, [T[-1]]])
             if len(t) < 2:  # a single sample: hold it over one second
                 t, T = np.array([0.0, max(last, 1.0)]), np.array([T[0], T[0]])
@@ -209,8 +211,14 @@ class _Problem:
             n_int += len(t) - 1
         first = np.array(first)
         gi = np.concatenate([i + f for i, f in zip(self._idx, first, strict=True)])
-        self._node_data = (np.vstack(G), np.concatenate(half), np.concatenate(starts),
-                           first[self.bidx], gi, np.concatenate(self._frac))
+        self._node_data = (
+            np.vstack(G),
+            np.concatenate(half),
+            np.concatenate(starts),
+            first[self.bidx],
+            gi,
+            np.concatenate(self._frac),
+        )
         self._node_ref = t_ref_k
         return self._node_data
 
@@ -230,8 +238,12 @@ class _Problem:
     def mean_inverse_temperature(self, ea_j_per_mol: float, t_ref_k: float) -> float:
         """Θ-weighted mean of 1/T over each series up to its last assay [1/K]."""
         th, s1 = self.theta(ea_j_per_mol, t_ref_k)
-        last = np.array([np.flatnonzero(self.bidx == b)[np.argmax(self.t_rel[self.bidx == b])]
-                         for b in range(self.n_series)])
+        last = np.array(
+            [
+                np.flatnonzero(self.bidx == b)[np.argmax(self.t_rel[self.bidx == b])]
+                for b in range(self.n_series)
+            ]
+        )
         # mean of g = -(1/T - 1/T_ref)/R over a window is S1/Theta
         return float(1.0 / t_ref_k - R_J_PER_MOL_K * np.sum(s1[last]) / np.sum(th[last]))
 
@@ -289,7 +301,7 @@ class _Model:
         j += int(sp.ea_free)
         shape = {name: x[j + q] for q, name in enumerate(sp.shape_free)}
         j += len(sp.shape_free)
-        phi = x[j:j + nb] if sp.phi else np.zeros(nb)
+        phi = x[j : j + nb] if sp.phi else np.zeros(nb)
         return lnk, ea, shape, phi
 
     def _evaluate(self, x):
@@ -323,7 +335,7 @@ class _Model:
         if sp.phi:
             r = np.concatenate([r, phi / self.tau])
             Jp = np.zeros((p.n_series, J.shape[1]))
-            Jp[:, sp.n_global():] = np.eye(p.n_series) / self.tau
+            Jp[:, sp.n_global() :] = np.eye(p.n_series) / self.tau
             J = np.vstack([J, Jp])
         self._cache_x, self._r, self._J = x.copy(), r, J
         self.pred, self.r_data, self.X = pred, r_data, X
@@ -334,8 +346,9 @@ class _Model:
         lo = self.spec.law({**shape, name: shape[name] - d})
         hi = self.spec.law({**shape, name: shape[name] + d})
         p = self.prob
-        dlns = (np.log([hi.scale(c) for c in p.c0_series])
-                - np.log([lo.scale(c) for c in p.c0_series])) / (2 * d)
+        dlns = (
+            np.log([hi.scale(c) for c in p.c0_series]) - np.log([lo.scale(c) for c in p.c0_series])
+        ) / (2 * d)
         Xc = np.minimum(X, 1.0 - 1e-12)
         with np.errstate(invalid="ignore", over="ignore"):
             dG = (np.asarray(hi.G(Xc)) - np.asarray(lo.G(Xc))) / (2 * d)
@@ -429,14 +442,24 @@ def _t_quantile(dof: int) -> float:
     return float(stats.t.ppf(0.975, dof)) if dof > 0 else math.inf
 
 
-def fit_batches(series: Sequence[FitSeries], rate_law: str = "power",
-                order: float | str = 1.0, *, law_params: dict | None = None,
-                per_batch_activity: bool = True, ea_prior_j_per_mol: float | None = None,
-                order_prior: float | None = None, activity_sd_start: float = 0.05,
-                fit_activity_sd: bool = True, free_law_params: Sequence[str] = (),
-                outlier_sigma: float | None = 4.0, exclude: np.ndarray | None = None,
-                t_ref_k: float | None = None, sd_known: bool = True,
-                on_iteration: Callable[[int], None] | None = None) -> PlantFit:
+def fit_batches(
+    series: Sequence[FitSeries],
+    rate_law: str = "power",
+    order: float | str = 1.0,
+    *,
+    law_params: dict | None = None,
+    per_batch_activity: bool = True,
+    ea_prior_j_per_mol: float | None = None,
+    order_prior: float | None = None,
+    activity_sd_start: float = 0.05,
+    fit_activity_sd: bool = True,
+    free_law_params: Sequence[str] = (),
+    outlier_sigma: float | None = 4.0,
+    exclude: np.ndarray | None = None,
+    t_ref_k: float | None = None,
+    sd_known: bool = True,
+    on_iteration: Callable[[int], None] | None = None,
+) -> PlantFit:
     """Joint weighted nonlinear least-squares fit of kinetics to many batches.
 
     Parameters
@@ -496,8 +519,10 @@ def fit_batches(series: Sequence[FitSeries], rate_law: str = "power",
     warnings: list[str] = []
     law_params = dict(law_params or {})
     if rate_law not in _SHAPE:
-        raise ValueError(f"rate law {rate_law!r} cannot be fitted by separation "
-                         "(supported: power, bimolecular, autocatalytic)")
+        raise ValueError(
+            f"rate law {rate_law!r} cannot be fitted by separation "
+            "(supported: power, bimolecular, autocatalytic)"
+        )
     prob = _Problem(series, warnings)
     free_order = rate_law == "power" and isinstance(order, str)
     if isinstance(order, str) and order != "free":
@@ -528,11 +553,15 @@ def fit_batches(series: Sequence[FitSeries], rate_law: str = "power",
     t_ref = t_ref_k or 1.0 / prob.mean_inverse_temperature(ea_nominal, t_guess)
     spec = _Spec(rate_law, law_fixed, shape_free, True, phi, t_ref)
 
-    shape_start = {"order": order_prior or 1.0,
-                   "ln_theta_r": math.log(max(law_params.get("theta_r") or 0.01, 1e-8))}
+    shape_start = {
+        "order": order_prior or 1.0,
+        "ln_theta_r": math.log(max(law_params.get("theta_r") or 0.01, 1e-8)),
+    }
     if free_order:
-        shape_grid = [{"order": n, **{k: shape_start[k] for k in shape_free if k != "order"}}
-                      for n in _ORDER_GRID]
+        shape_grid = [
+            {"order": n, **{k: shape_start[k] for k in shape_free if k != "order"}}
+            for n in _ORDER_GRID
+        ]
     else:
         shape_grid = [{k: shape_start[k] for k in shape_free}]
     ea_grid = _EA_GRID_KJ * _EA_SCALE
@@ -567,8 +596,18 @@ def fit_batches(series: Sequence[FitSeries], rate_law: str = "power",
             model.tau = state["tau"]
             model._cache_x = None
             tol = 1e-7 if em and it < 60 else 1e-10  # loose while tau moves, tight at the end
-            sol = least_squares(model.fun, x, jac=model.jac, bounds=(lo, hi), method="trf",
-                                x_scale="jac", ftol=tol, xtol=tol, gtol=tol, max_nfev=500)
+            sol = least_squares(
+                model.fun,
+                x,
+                jac=model.jac,
+                bounds=(lo, hi),
+                method="trf",
+                x_scale="jac",
+                ftol=tol,
+                xtol=tol,
+                gtol=tol,
+                max_nfev=500,
+            )
             x = sol.x
             if tol == 1e-10:
                 break
@@ -586,9 +625,18 @@ def fit_batches(series: Sequence[FitSeries], rate_law: str = "power",
             if converged:
                 model.tau = state["tau"]
                 model._cache_x = None
-                sol = least_squares(model.fun, x, jac=model.jac, bounds=(lo, hi),
-                                    method="trf", x_scale="jac", ftol=1e-10, xtol=1e-10,
-                                    gtol=1e-10, max_nfev=500)
+                sol = least_squares(
+                    model.fun,
+                    x,
+                    jac=model.jac,
+                    bounds=(lo, hi),
+                    method="trf",
+                    x_scale="jac",
+                    ftol=1e-10,
+                    xtol=1e-10,
+                    gtol=1e-10,
+                    max_nfev=500,
+                )
                 x = sol.x
                 break
         model.tau = state["tau"]
@@ -618,12 +666,16 @@ def fit_batches(series: Sequence[FitSeries], rate_law: str = "power",
             t_eff = prob.effective_temperatures(ea if np.isfinite(ea) else ea_nominal, t_ref)
             span = float(np.nanmax(t_eff) - np.nanmin(t_eff)) if np.isfinite(t_eff).any() else 0
             size = f"±{se_ea / 1e3:.0f} kJ/mol" if np.isfinite(se_ea) else "unbounded"
-            fixed_at = (f"fixed at the prior {ea_prior_j_per_mol / 1e3:.1f} kJ/mol"
-                        if ea_prior_j_per_mol is not None else
-                        "not reported (no prior given); k_ref holds at T_ref only")
-            warnings.append(f"Ea cannot be identified from these data: the assays' windows "
-                            f"span only {span:.1f} K of effective temperature (its standard "
-                            f"error would be {size}); {fixed_at}")
+            fixed_at = (
+                f"fixed at the prior {ea_prior_j_per_mol / 1e3:.1f} kJ/mol"
+                if ea_prior_j_per_mol is not None
+                else "not reported (no prior given); k_ref holds at T_ref only"
+            )
+            warnings.append(
+                f"Ea cannot be identified from these data: the assays' windows "
+                f"span only {span:.1f} K of effective temperature (its standard "
+                f"error would be {size}); {fixed_at}"
+            )
             fixed["ea_j_per_mol"] = "unidentifiable"
             spec.ea_free = False
             spec.ea_fixed_j = ea_prior_j_per_mol if ea_prior_j_per_mol is not None else 0.0
@@ -633,19 +685,26 @@ def fit_batches(series: Sequence[FitSeries], rate_law: str = "power",
         se = math.sqrt(cov[j, j]) if np.isfinite(cov[j, j]) else math.inf
         if not np.isfinite(s2) or not se <= UNIDENTIFIABLE_SE_SHAPE:
             key, to_law, _ = _SHAPE[rate_law][name]
-            prior_v = (order_prior if key == "order" else law_params.get(key))
+            prior_v = order_prior if key == "order" else law_params.get(key)
             if prior_v is None:
                 prior_v = 1.0 if key == "order" else 0.01
-            warnings.append(f"{key} cannot be identified from these data (standard error "
-                            f"{'unbounded' if not np.isfinite(se) else f'{se:.2g}'}); fixed "
-                            f"at {prior_v:g}")
+            warnings.append(
+                f"{key} cannot be identified from these data (standard error "
+                f"{'unbounded' if not np.isfinite(se) else f'{se:.2g}'}); fixed "
+                f"at {prior_v:g}"
+            )
             fixed[key] = "unidentifiable"
             spec.shape_free.remove(name)
             spec.law_fixed[key] = float(prior_v)
             refit = True
     if refit:
-        x0 = vector(spec, lnk, spec.ea_fixed_j if not spec.ea_free else ea,
-                    {k: v for k, v in shape.items() if k in spec.shape_free}, phis)
+        x0 = vector(
+            spec,
+            lnk,
+            spec.ea_fixed_j if not spec.ea_free else ea,
+            {k: v for k, v in shape.items() if k in spec.shape_free},
+            phis,
+        )
         model, x = run(spec, x0)
 
     # outliers: listed, left out, fitted again (never silently)
@@ -658,9 +717,11 @@ def fit_batches(series: Sequence[FitSeries], rate_law: str = "power",
             for i in np.flatnonzero(bad):
                 nm = prob.names[prob.bidx[i]]
                 excluded.append((nm, float(prob.t_rel[i]), float(prob.obs[i]), float(rd[i])))
-                warnings.append(f"{nm}: assay at {prob.t_rel[i] / 60:.0f} min after start "
-                                f"(value {prob.obs[i]:g}) is {rd[i]:+.1f} sigma from the model; "
-                                "left out of the fit")
+                warnings.append(
+                    f"{nm}: assay at {prob.t_rel[i] / 60:.0f} min after start "
+                    f"(value {prob.obs[i]:g}) is {rd[i]:+.1f} sigma from the model; "
+                    "left out of the fit"
+                )
             active &= ~bad
             model, x = run(spec, model._cache_x)
 
@@ -681,19 +742,34 @@ def fit_batches(series: Sequence[FitSeries], rate_law: str = "power",
             model = _Model(prob, spec, active)
             model.tau = state["tau"]
             model._evaluate(x)
-        t_ref_note = ("chosen where the fitted ln k_ref and Ea are uncorrelated (Schwaab & "
-                      "Pinto 2007), started from the Θ-weighted harmonic mean temperature")
+        t_ref_note = (
+            "chosen where the fitted ln k_ref and Ea are uncorrelated (Schwaab & "
+            "Pinto 2007), started from the Θ-weighted harmonic mean temperature"
+        )
     elif t_ref_k is not None:
         t_ref_note = "given"
     else:
         t_ref_note = "Θ-weighted harmonic mean temperature of the fitted windows"
 
-    return _result(prob, spec, model, x, active, state, fixed, warnings, excluded,
-                   ea_prior_j_per_mol, t_ref_note, sd_known)
+    return _result(
+        prob,
+        spec,
+        model,
+        x,
+        active,
+        state,
+        fixed,
+        warnings,
+        excluded,
+        ea_prior_j_per_mol,
+        t_ref_note,
+        sd_known,
+    )
 
 
-def _result(prob, spec, model, x, active, state, fixed, warnings, excluded, ea_prior,
-            t_ref_note, sd_known) -> PlantFit:
+def _result(
+    prob, spec, model, x, active, state, fixed, warnings, excluded, ea_prior, t_ref_note, sd_known
+) -> PlantFit:
     m = int(active.sum())
     p_glob = spec.n_global()
     dof = m - p_glob
@@ -713,9 +789,12 @@ def _result(prob, spec, model, x, active, state, fixed, warnings, excluded, ea_p
 
     se_lnk = se_of("ln_k_ref")
     k_ref = float(math.exp(lnk))
-    stderr = {"k_ref": None if se_lnk is None else k_ref * se_lnk, "ln_k_ref": se_lnk,
-              "ea_j_per_mol": se_of("ea", _EA_SCALE) if spec.ea_free else None,
-              "order": se_of("order") if "order" in spec.shape_free else None}
+    stderr = {
+        "k_ref": None if se_lnk is None else k_ref * se_lnk,
+        "ln_k_ref": se_lnk,
+        "ea_j_per_mol": se_of("ea", _EA_SCALE) if spec.ea_free else None,
+        "order": se_of("order") if "order" in spec.shape_free else None,
+    }
     ci = {"ln_k_ref": None if se_lnk is None else (lnk - q * se_lnk, lnk + q * se_lnk)}
     ci["k_ref"] = None if se_lnk is None else tuple(math.exp(v) for v in ci["ln_k_ref"])
     if stderr["ea_j_per_mol"] is not None:
@@ -743,33 +822,63 @@ def _result(prob, spec, model, x, active, state, fixed, warnings, excluded, ea_p
         order = float(shape.get("order", spec.law_fixed.get("order", 1.0)))
     else:
         order = 2.0
-    used_params = {k: getattr(law, k) for k in ("theta_b", "b", "theta_r", "epsilon")
-                   if hasattr(law, k)}
+    used_params = {
+        k: getattr(law, k) for k in ("theta_b", "b", "theta_r", "epsilon") if hasattr(law, k)
+    }
     resid_raw = prob.obs - model.pred
     residuals = []
     for b, name in enumerate(prob.names):
         sel = prob.bidx == b
-        residuals.append({"name": name, "t_s": prob.t_rel[sel], "observed": prob.obs[sel],
-                          "predicted": model.pred[sel], "residual": resid_raw[sel],
-                          "sigma": model.r_data[sel], "used": active[sel]})
+        residuals.append(
+            {
+                "name": name,
+                "t_s": prob.t_rel[sel],
+                "observed": prob.obs[sel],
+                "predicted": model.pred[sel],
+                "residual": resid_raw[sel],
+                "sigma": model.r_data[sel],
+                "used": active[sel],
+            }
+        )
     ssr = float(np.sum(model.r_data[active] ** 2))
     n_params = p_glob + int(spec.phi)
     aic = m * math.log(ssr / m) + 2 * n_params if m and ssr > 0 else math.nan
     bic = m * math.log(ssr / m) + n_params * math.log(m) if m and ssr > 0 else math.nan
     if spec.phi and model.tau <= TAU_FLOOR * 1.0001:
-        warnings.append("no batch-to-batch activity spread is detectable; activity_sd is at "
-                        f"its floor {TAU_FLOOR:g}")
+        warnings.append(
+            "no batch-to-batch activity spread is detectable; activity_sd is at "
+            f"its floor {TAU_FLOOR:g}"
+        )
     ea_out = ea if spec.ea_free else (ea_prior if ea_prior is not None else None)
     return PlantFit(
-        rate_law=spec.rate_law, law_params=used_params, order=order, k_ref=k_ref,
-        t_ref_k=spec.t_ref_k, ea_j_per_mol=None if ea_out is None else float(ea_out),
-        stderr=stderr, ci95=ci, correlation=corr,
+        rate_law=spec.rate_law,
+        law_params=used_params,
+        order=order,
+        k_ref=k_ref,
+        t_ref_k=spec.t_ref_k,
+        ea_j_per_mol=None if ea_out is None else float(ea_out),
+        stderr=stderr,
+        ci95=ci,
+        correlation=corr,
         activity={n: float(math.exp(v)) for n, v in zip(prob.names, phis, strict=True)},
-        activity_sd=float(model.tau) if spec.phi else None, n_series=prob.n_series,
-        n_assays=m, n_params=n_params,
-        rmse=float(np.sqrt(np.mean(resid_raw[active] ** 2))), ssr=ssr, s2=s2, dof=dof,
-        aic=aic, bic=bic, fixed=fixed, residuals=residuals, excluded=excluded,
-        warnings=warnings, nfev=state["nfev"], njev=state["njev"], t_ref_note=t_ref_note)
+        activity_sd=float(model.tau) if spec.phi else None,
+        n_series=prob.n_series,
+        n_assays=m,
+        n_params=n_params,
+        rmse=float(np.sqrt(np.mean(resid_raw[active] ** 2))),
+        ssr=ssr,
+        s2=s2,
+        dof=dof,
+        aic=aic,
+        bic=bic,
+        fixed=fixed,
+        residuals=residuals,
+        excluded=excluded,
+        warnings=warnings,
+        nfev=state["nfev"],
+        njev=state["njev"],
+        t_ref_note=t_ref_note,
+    )
 
 
 def excluded_mask(fit: PlantFit) -> np.ndarray:

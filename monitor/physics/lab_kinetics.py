@@ -93,8 +93,9 @@ def fit_arrhenius(T_K, k, t_ref_k: float | None = None) -> ArrheniusFit:
         corr = float(cov[0, 1] / (se[0] * se[1])) if se.all() else 0.0
     else:
         se, corr = np.array([math.nan, math.nan]), math.nan
-    return ArrheniusFit(float(math.exp(coef[0])), tr, float(coef[1]), float(se[0]),
-                        float(se[1]), corr, dof)
+    return ArrheniusFit(
+        float(math.exp(coef[0])), tr, float(coef[1]), float(se[0]), float(se[1]), corr, dof
+    )
 
 
 # ============================================================== isothermal lab methods
@@ -202,24 +203,43 @@ def fit_integral(t_s, c, c0: float | None = None, order: float | None = None) ->
     # linearised start: G(X) = k C_A0^(n-1) t through the origin, for a few orders
     X = np.clip(1.0 - c / c0, 1e-6, 1 - 1e-6)
     best = None
-    for n in (_ORDER_GRID if free else [order]):
+    for n in _ORDER_GRID if free else [order]:
         g = power_G(X, n)
         k = float(np.sum(g * t) / np.sum(t * t)) / c0 ** (n - 1.0)
-        p = np.array([math.log(max(k, 1e-300)), n]) if free else np.array([math.log(max(k,
-                                                                                      1e-300))])
+        p = (
+            np.array([math.log(max(k, 1e-300)), n])
+            if free
+            else np.array([math.log(max(k, 1e-300))])
+        )
         ssr = float(np.sum(resid(p) ** 2))
         if best is None or ssr < best[0]:
             best = (ssr, p)
     bounds = ([-np.inf, 0.0], [np.inf, 6.0]) if free else (-np.inf, np.inf)
-    sol = least_squares(resid, best[1], bounds=bounds, jac="3-point", x_scale="jac",
-                        ftol=1e-12, xtol=1e-12, gtol=1e-12)
+    sol = least_squares(
+        resid,
+        best[1],
+        bounds=bounds,
+        jac="3-point",
+        x_scale="jac",
+        ftol=1e-12,
+        xtol=1e-12,
+        gtol=1e-12,
+    )
     cov, _, dof = _cov_from_jac(sol.jac, sol.fun)
     se = np.sqrt(np.abs(np.diag(cov)))
     k = float(math.exp(sol.x[0]))
     corr = float(cov[0, 1] / (se[0] * se[1])) if free and se.all() else 0.0
-    return IsothermalFit("integral", k, float(sol.x[1]) if free else float(order),
-                         k * float(se[0]), float(se[1]) if free else None, corr,
-                         float(np.sqrt(np.mean(sol.fun ** 2))), len(t), dof)
+    return IsothermalFit(
+        "integral",
+        k,
+        float(sol.x[1]) if free else float(order),
+        k * float(se[0]),
+        float(se[1]) if free else None,
+        corr,
+        float(np.sqrt(np.mean(sol.fun**2))),
+        len(t),
+        dof,
+    )
 
 
 def fit_differential(t_s, c, method: str = "polynomial", degree: int = 3) -> IsothermalFit:
@@ -276,10 +296,17 @@ def fit_differential(t_s, c, method: str = "polynomial", degree: int = 3) -> Iso
     cov, _, dof = _cov_from_jac(A, r)
     se = np.sqrt(np.diag(cov))
     k = float(math.exp(coef[0]))
-    return IsothermalFit(f"differential ({method})", k, float(coef[1]), k * float(se[0]),
-                         float(se[1]), float(cov[0, 1] / (se[0] * se[1])),
-                         float(np.sqrt(np.mean(r ** 2))), int(ok.sum()), dof)
+    return IsothermalFit(
+        f"differential ({method})",
+        k,
+        float(coef[1]),
+        k * float(se[0]),
+        float(se[1]),
+        float(cov[0, 1] / (se[0] * se[1])),
+        float(np.sqrt(np.mean(r**2))),
+        int(ok.sum()),
+        dof,
+    )
 
 
-__all__ = ["ArrheniusFit", "IsothermalFit", "fit_arrhenius", "fit_differential",
-           "fit_integral"]
+__all__ = ["ArrheniusFit", "IsothermalFit", "fit_arrhenius", "fit_differential", "fit_integral"]

@@ -348,9 +348,17 @@ def _tabulated(law: SeparableLaw) -> _Table:
     return _TABLES[law]
 
 
-def make_law(rate_law: str, *, order: float = 1.0, theta_b: float | None = None, b: float = 1.0,
-             theta_r: float = 0.0, k_eq_ref: float | None = None,
-             dh_rxn_j_per_mol: float = 0.0, epsilon: float = 0.0):
+def make_law(
+    rate_law: str,
+    *,
+    order: float = 1.0,
+    theta_b: float | None = None,
+    b: float = 1.0,
+    theta_r: float = 0.0,
+    k_eq_ref: float | None = None,
+    dh_rxn_j_per_mol: float = 0.0,
+    epsilon: float = 0.0,
+):
     """Build a rate-law object by name (one of `LAWS`)."""
     if rate_law == "power":
         return PowerLaw(epsilon=epsilon, order=order)
@@ -365,10 +373,21 @@ def make_law(rate_law: str, *, order: float = 1.0, theta_b: float | None = None,
     if rate_law == "reversible":
         if k_eq_ref is None:
             raise ValueError("reversible law needs k_eq_ref")
-        return ReversibleLaw(theta_r=theta_r, k_eq_ref=k_eq_ref,
-                             dh_rxn_j_per_mol=dh_rxn_j_per_mol, epsilon=epsilon)
+        return ReversibleLaw(
+            theta_r=theta_r, k_eq_ref=k_eq_ref, dh_rxn_j_per_mol=dh_rxn_j_per_mol, epsilon=epsilon
+        )
     raise ValueError(f"unknown rate law {rate_law!r}; expected one of {LAWS}")
 
 
-__all__ = ["LAWS", "PowerLaw", "BimolecularLaw", "AutocatalyticLaw", "ReversibleLaw",
-           "SeparableLaw", "make_law", "log1prel", "power_G", "power_G_inv"]
+__all__ = [
+    "LAWS",
+    "PowerLaw",
+    "BimolecularLaw",
+    "AutocatalyticLaw",
+    "ReversibleLaw",
+    "SeparableLaw",
+    "make_law",
+    "log1prel",
+    "power_G",
+    "power_G_inv",
+]

@@ -21,8 +21,9 @@ import numpy as np
 from .arrhenius import R_J_PER_MOL_K
 
 
-def adiabatic_temperature_rise(heat_of_reaction_j_per_mol, c_a0_mol_per_l, density_kg_per_m3,
-                               heat_capacity_j_per_kg_k):
+def adiabatic_temperature_rise(
+    heat_of_reaction_j_per_mol, c_a0_mol_per_l, density_kg_per_m3, heat_capacity_j_per_kg_k
+):
     """``dT_ad = (-dH_r) C_A0 / (rho c_p)`` [K].
 
     Parameters
@@ -41,8 +42,12 @@ def adiabatic_temperature_rise(heat_of_reaction_j_per_mol, c_a0_mol_per_l, densi
     >>> round(adiabatic_temperature_rise(-85e3, 1.8, 950.0, 1900.0), 2)
     84.76
     """
-    return -heat_of_reaction_j_per_mol * c_a0_mol_per_l * 1000.0 / (
-        density_kg_per_m3 * heat_capacity_j_per_kg_k)
+    return (
+        -heat_of_reaction_j_per_mol
+        * c_a0_mol_per_l
+        * 1000.0
+        / (density_kg_per_m3 * heat_capacity_j_per_kg_k)
+    )
 
 
 def mtsr(T_K, conversion, delta_t_ad_k):

@@ -48,8 +48,13 @@ def _cells(t0, t1, T0, T1, ea, t_ref_k):
     j = np.arange(len(owner)) - np.repeat(np.cumsum(m) - m, m)  # cell number within its interval
     frac0, frac1 = j / m[owner], (j + 1) / m[owner]
     dt, dT = (t1 - t0)[owner], (T1 - T0)[owner]
-    return (t0[owner] + frac0 * dt, t0[owner] + frac1 * dt,
-            T0[owner] + frac0 * dT, T0[owner] + frac1 * dT, (owner, len(t0)))
+    return (
+        t0[owner] + frac0 * dt,
+        t0[owner] + frac1 * dt,
+        T0[owner] + frac0 * dT,
+        T0[owner] + frac1 * dT,
+        (owner, len(t0)),
+    )
 
 
 def segment_integrals(t_s, T_K, ea_j_per_mol, t_ref_k):
@@ -170,8 +175,8 @@ class ThetaTrace:
         if n and t_new.min() <= self.t_s[n - 1] or np.any(np.diff(t_new) <= 0):
             return self._merge(t_new, T_new)
         self._grow(n + len(t_new))
-        self.t_s[n:n + len(t_new)] = t_new
-        self.T_K[n:n + len(t_new)] = T_new
+        self.t_s[n : n + len(t_new)] = t_new
+        self.T_K[n : n + len(t_new)] = T_new
         self._n = n + len(t_new)
         self._integrate_from(max(n - 1, 0))
         return max(n - 1, 0)
@@ -208,11 +213,11 @@ class ThetaTrace:
         m = len(rows)
         self._grow(n + m)
         cols = list(zip(*rows, strict=True))
-        self.t_s[n:n + m] = cols[0]
-        self.T_K[n:n + m] = cols[1]
-        self.theta[n:n + m] = cols[2]
-        self.s1[n:n + m] = cols[3]
-        self.s2[n:n + m] = cols[4]
+        self.t_s[n : n + m] = cols[0]
+        self.T_K[n : n + m] = cols[1]
+        self.theta[n : n + m] = cols[2]
+        self.s1[n : n + m] = cols[3]
+        self.s2[n : n + m] = cols[4]
         self._n = n + m
         self.gaps.extend(gaps)
         return True
@@ -244,13 +249,14 @@ class ThetaTrace:
             return
         t, T = self.t_s[i0:n], self.T_K[i0:n]
         th, a, b = segment_integrals(t, T, self.ea_j_per_mol, self.t_ref_k)
-        self.theta[i0 + 1:n] = self.theta[i0] + np.cumsum(th)
-        self.s1[i0 + 1:n] = self.s1[i0] + np.cumsum(a)
-        self.s2[i0 + 1:n] = self.s2[i0] + np.cumsum(b)
+        self.theta[i0 + 1 : n] = self.theta[i0] + np.cumsum(th)
+        self.s1[i0 + 1 : n] = self.s1[i0] + np.cumsum(a)
+        self.s2[i0 + 1 : n] = self.s2[i0] + np.cumsum(b)
         dt = np.diff(t)
         for j in np.flatnonzero(dt > self.max_gap_s):
-            self.gaps.append(Gap(float(t[j]), float(t[j + 1]), float(th[j]),
-                                 float((T[j] + T[j + 1]) / 2)))
+            self.gaps.append(
+                Gap(float(t[j]), float(t[j + 1]), float(th[j]), float((T[j] + T[j + 1]) / 2))
+            )
 
     # ---- read-outs
     @property
@@ -276,13 +282,17 @@ class ThetaTrace:
         if total <= 0:
             return 0.0
         beta = self.ea_j_per_mol / R_J_PER_MOL_K
-        var = sum((g.theta_s * beta * self.gap_temperature_sd_k / g.T_mean_k**2) ** 2
-                  for g in self.gaps if g.end_s <= upto)
+        var = sum(
+            (g.theta_s * beta * self.gap_temperature_sd_k / g.T_mean_k**2) ** 2
+            for g in self.gaps
+            if g.end_s <= upto
+        )
         return var / total**2
 
 
-def reversible_segments(t_s, T_K, ea_j_per_mol, t_ref_k, k_ref, k_eq_ref, dh_rxn_j_per_mol,
-                        theta_r):
+def reversible_segments(
+    t_s, T_K, ea_j_per_mol, t_ref_k, k_ref, k_eq_ref, dh_rxn_j_per_mol, theta_r
+):
     """Per-interval coefficients of the first-order reversible law, for any activity.
 
     Over an interval the law ``dX/dt = alpha k [(1 - theta_r/K) - (1 + 1/K) X]`` is

@@ -38,51 +38,95 @@ from ..errors import StoreError
 log = logging.getLogger(__name__)
 meta = MetaData()
 
-batches = Table("batches", meta,
-                Column("batch", String(64), primary_key=True), Column("unit", String(64)),
-                Column("recipe", String(64)), Column("start_s", Double), Column("end_s", Double),
-                Column("state", String(16)))
-estimates = Table("estimates", meta,
-                  Column("id", Integer, primary_key=True, autoincrement=True),
-                  Column("batch", String(64), nullable=False),
-                  Column("at_s", Double, nullable=False),
-                  Column("conversion", Double), Column("conversion_sd", Double),
-                  Column("activity", Double), Column("activity_sd", Double),
-                  Column("target_conversion", Double), Column("predicted_end_s", Double),
-                  Column("p10_s", Double), Column("p90_s", Double), Column("forecast_note", Text),
-                  Column("n_assays_used", Integer), Column("warnings", Text),
-                  Column("kinetics_version", String(32)), Column("doc", Text),
-                  UniqueConstraint("batch", "at_s", name="uq_estimate_batch_at"))
-alerts = Table("alerts", meta,
-               Column("id", Integer, primary_key=True, autoincrement=True),
-               Column("batch", String(64), nullable=False), Column("kind", String(32)),
-               Column("severity", String(16)), Column("state", String(16)),
-               Column("raised_at_s", Double), Column("cleared_at_s", Double),
-               Column("acked_by", String(64)), Column("message", Text),
-               UniqueConstraint("batch", "kind", "raised_at_s", name="uq_alert"))
-watermarks = Table("watermarks", meta, Column("name", String(64), primary_key=True),
-                   Column("value", Text))
-kinetics_versions = Table("kinetics_versions", meta,
-                          Column("version", String(32), primary_key=True),
-                          Column("recipe", String(64)), Column("source", Text),
-                          Column("first_used_s", Double))
-archive_index = Table("archive_index", meta,
-                      Column("id", Integer, primary_key=True, autoincrement=True),
-                      Column("batch", String(64)), Column("version", Integer),
-                      Column("pdf", Text), Column("json", Text), Column("sha256", String(64)),
-                      Column("created_s", Double))
-heartbeat = Table("heartbeat", meta, Column("name", String(32), primary_key=True),
-                  Column("last_good_cycle_s", Double), Column("last_data_s", Double),
-                  Column("cycles", Integer), Column("failed_cycles", Integer),
-                  Column("message", Text))
-migrations_table = Table("schema_migrations", meta,
-                         Column("name", String(128), primary_key=True),
-                         Column("applied_at", String(40)))
+batches = Table(
+    "batches",
+    meta,
+    Column("batch", String(64), primary_key=True),
+    Column("unit", String(64)),
+    Column("recipe", String(64)),
+    Column("start_s", Double),
+    Column("end_s", Double),
+    Column("state", String(16)),
+)
+estimates = Table(
+    "estimates",
+    meta,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("batch", String(64), nullable=False),
+    Column("at_s", Double, nullable=False),
+    Column("conversion", Double),
+    Column("conversion_sd", Double),
+    Column("activity", Double),
+    Column("activity_sd", Double),
+    Column("target_conversion", Double),
+    Column("predicted_end_s", Double),
+    Column("p10_s", Double),
+    Column("p90_s", Double),
+    Column("forecast_note", Text),
+    Column("n_assays_used", Integer),
+    Column("warnings", Text),
+    Column("kinetics_version", String(32)),
+    Column("doc", Text),
+    UniqueConstraint("batch", "at_s", name="uq_estimate_batch_at"),
+)
+alerts = Table(
+    "alerts",
+    meta,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("batch", String(64), nullable=False),
+    Column("kind", String(32)),
+    Column("severity", String(16)),
+    Column("state", String(16)),
+    Column("raised_at_s", Double),
+    Column("cleared_at_s", Double),
+    Column("acked_by", String(64)),
+    Column("message", Text),
+    UniqueConstraint("batch", "kind", "raised_at_s", name="uq_alert"),
+)
+watermarks = Table(
+    "watermarks", meta, Column("name", String(64), primary_key=True), Column("value", Text)
+)
+kinetics_versions = Table(
+    "kinetics_versions",
+    meta,
+    Column("version", String(32), primary_key=True),
+    Column("recipe", String(64)),
+    Column("source", Text),
+    Column("first_used_s", Double),
+)
+archive_index = Table(
+    "archive_index",
+    meta,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("batch", String(64)),
+    Column("version", Integer),
+    Column("pdf", Text),
+    Column("json", Text),
+    Column("sha256", String(64)),
+    Column("created_s", Double),
+)
+heartbeat = Table(
+    "heartbeat",
+    meta,
+    Column("name", String(32), primary_key=True),
+    Column("last_good_cycle_s", Double),
+    Column("last_data_s", Double),
+    Column("cycles", Integer),
+    Column("failed_cycles", Integer),
+    Column("message", Text),
+)
+migrations_table = Table(
+    "schema_migrations",
+    meta,
+    Column("name", String(128), primary_key=True),
+    Column("applied_at", String(40)),
+)
 
 
 def _m001_initial(conn) -> None:
-    meta.create_all(conn, tables=[batches, estimates, alerts, watermarks, kinetics_versions,
-                                  archive_index])
+    meta.create_all(
+        conn, tables=[batches, estimates, alerts, watermarks, kinetics_versions, archive_index]
+    )
 
 
 def _m002_heartbeat(conn) -> None:
@@ -100,8 +144,11 @@ def _m003_double_precision(conn) -> None:
     quote = conn.dialect.identifier_preparer.quote
     for table in (batches, estimates, alerts, kinetics_versions, archive_index, heartbeat):
         # Core has no ALTER COLUMN; the names are this module's constants, not input
-        changes = ", ".join(f"MODIFY {quote(c.name)} DOUBLE{'' if c.nullable else ' NOT NULL'}"
-                            for c in table.columns if isinstance(c.type, Double))
+        changes = ", ".join(
+            f"MODIFY {quote(c.name)} DOUBLE{'' if c.nullable else ' NOT NULL'}"
+            for c in table.columns
+            if isinstance(c.type, Double)
+        )
         conn.execute(text(f"ALTER TABLE {quote(table.name)} {changes}"))
 
 
@@ -135,13 +182,18 @@ def migrate(engine: Engine) -> list[str]:
         done = {r[0] for r in conn.execute(select(migrations_table.c.name))}
         unknown = sorted(done - set(known))
         if unknown:
-            raise StoreError(f"the store was written by a newer convmon (migration "
-                             f"{unknown[-1]!r} unknown to this version); upgrade convmon")
+            raise StoreError(
+                f"the store was written by a newer convmon (migration "
+                f"{unknown[-1]!r} unknown to this version); upgrade convmon"
+            )
         for name, fn in MIGRATIONS:
             if name not in done:
                 fn(conn)
-                conn.execute(insert(migrations_table).values(
-                    name=name, applied_at=datetime.now(UTC).isoformat(timespec="seconds")))
+                conn.execute(
+                    insert(migrations_table).values(
+                        name=name, applied_at=datetime.now(UTC).isoformat(timespec="seconds")
+                    )
+                )
                 applied_now.append(name)
     return applied_now
 
@@ -150,8 +202,10 @@ def applied_migrations(engine: Engine) -> list[str]:
     if not inspect(engine).has_table("schema_migrations"):
         return []
     with engine.connect() as conn:
-        return [r[0] for r in conn.execute(select(migrations_table.c.name).order_by(
-            migrations_table.c.name))]
+        return [
+            r[0]
+            for r in conn.execute(select(migrations_table.c.name).order_by(migrations_table.c.name))
+        ]
 
 
 class Store:
@@ -166,9 +220,17 @@ class Store:
             row = conn.execute(select(watermarks.c.value).where(watermarks.c.name == name)).first()
         return json.loads(row[0]) if row else None
 
-    def commit_cycle(self, *, watermark: dict, batch_rows: list[dict], estimate_rows: list[dict],
-                     alert_changes: list[dict], kinetics_rows: list[dict], now_s: float,
-                     last_data_s: float | None) -> dict:
+    def commit_cycle(
+        self,
+        *,
+        watermark: dict,
+        batch_rows: list[dict],
+        estimate_rows: list[dict],
+        alert_changes: list[dict],
+        kinetics_rows: list[dict],
+        now_s: float,
+        last_data_s: float | None,
+    ) -> dict:
         """Results and watermark in one transaction: all of it, or none of it.
 
         Rows are looked up and written in sets (one SELECT per table and chunk, one
@@ -185,14 +247,21 @@ class Store:
                         conn.execute(insert(alerts).values(**row))
                         added["alerts"] += 1
                     else:
-                        conn.execute(update(alerts).where(alerts.c.id == a["id"]).values(
-                            state="cleared", cleared_at_s=a["cleared_at_s"]))
+                        conn.execute(
+                            update(alerts)
+                            .where(alerts.c.id == a["id"])
+                            .values(state="cleared", cleared_at_s=a["cleared_at_s"])
+                        )
                 _insert_new_kinetics(conn, kinetics_rows)
                 value = json.dumps(watermark, separators=(",", ":"))
-                if conn.execute(select(watermarks.c.name).where(
-                        watermarks.c.name == "historian")).first():
-                    conn.execute(update(watermarks).where(watermarks.c.name == "historian")
-                                 .values(value=value))
+                if conn.execute(
+                    select(watermarks.c.name).where(watermarks.c.name == "historian")
+                ).first():
+                    conn.execute(
+                        update(watermarks)
+                        .where(watermarks.c.name == "historian")
+                        .values(value=value)
+                    )
                 else:
                     conn.execute(insert(watermarks).values(name="historian", value=value))
                 self._beat(conn, now_s, last_data_s, ok=True)
@@ -210,9 +279,16 @@ class Store:
     def _beat(self, conn, now_s, last_data_s, *, ok: bool, message: str = "") -> None:
         row = conn.execute(select(heartbeat).where(heartbeat.c.name == "monitor")).first()
         if row is None:
-            conn.execute(insert(heartbeat).values(
-                name="monitor", last_good_cycle_s=now_s if ok else None, last_data_s=last_data_s,
-                cycles=1 if ok else 0, failed_cycles=0 if ok else 1, message=message))
+            conn.execute(
+                insert(heartbeat).values(
+                    name="monitor",
+                    last_good_cycle_s=now_s if ok else None,
+                    last_data_s=last_data_s,
+                    cycles=1 if ok else 0,
+                    failed_cycles=0 if ok else 1,
+                    message=message,
+                )
+            )
             return
         values = {"message": message}
         if ok:
@@ -237,18 +313,30 @@ class Store:
 
     def running_batches(self) -> list[str]:
         with self.engine.connect() as conn:
-            return [r[0] for r in conn.execute(select(batches.c.batch).where(
-                batches.c.state == "running"))]
+            return [
+                r[0]
+                for r in conn.execute(select(batches.c.batch).where(batches.c.state == "running"))
+            ]
 
     def latest_estimates(self) -> list[dict]:
         """The newest estimate of every batch still marked running."""
         with self.engine.connect() as conn:
-            running = [r[0] for r in conn.execute(select(batches.c.batch).where(
-                batches.c.state == "running").order_by(batches.c.start_s))]
+            running = [
+                r[0]
+                for r in conn.execute(
+                    select(batches.c.batch)
+                    .where(batches.c.state == "running")
+                    .order_by(batches.c.start_s)
+                )
+            ]
             out = []
             for b in running:
-                row = conn.execute(select(estimates.c.doc).where(estimates.c.batch == b)
-                                   .order_by(estimates.c.at_s.desc()).limit(1)).first()
+                row = conn.execute(
+                    select(estimates.c.doc)
+                    .where(estimates.c.batch == b)
+                    .order_by(estimates.c.at_s.desc())
+                    .limit(1)
+                ).first()
                 if row:
                     out.append(json.loads(row[0]))
         return out
@@ -256,17 +344,38 @@ class Store:
     def snapshot(self) -> dict:
         """Everything a run leaves behind, for comparing runs (kill/restart tests)."""
         with self.engine.connect() as conn:
-            est = [tuple(r) for r in conn.execute(select(
-                estimates.c.batch, estimates.c.at_s, estimates.c.conversion,
-                estimates.c.predicted_end_s).order_by(estimates.c.batch, estimates.c.at_s))]
-            al = [tuple(r) for r in conn.execute(select(
-                alerts.c.batch, alerts.c.kind, alerts.c.state, alerts.c.raised_at_s,
-                alerts.c.cleared_at_s).order_by(alerts.c.batch, alerts.c.kind,
-                                                alerts.c.raised_at_s))]
+            est = [
+                tuple(r)
+                for r in conn.execute(
+                    select(
+                        estimates.c.batch,
+                        estimates.c.at_s,
+                        estimates.c.conversion,
+                        estimates.c.predicted_end_s,
+                    ).order_by(estimates.c.batch, estimates.c.at_s)
+                )
+            ]
+            al = [
+                tuple(r)
+                for r in conn.execute(
+                    select(
+                        alerts.c.batch,
+                        alerts.c.kind,
+                        alerts.c.state,
+                        alerts.c.raised_at_s,
+                        alerts.c.cleared_at_s,
+                    ).order_by(alerts.c.batch, alerts.c.kind, alerts.c.raised_at_s)
+                )
+            ]
             bt = [tuple(r) for r in conn.execute(select(batches).order_by(batches.c.batch))]
-            arc = [tuple(r) for r in conn.execute(select(
-                archive_index.c.batch, archive_index.c.version, archive_index.c.sha256).order_by(
-                archive_index.c.batch))]
+            arc = [
+                tuple(r)
+                for r in conn.execute(
+                    select(
+                        archive_index.c.batch, archive_index.c.version, archive_index.c.sha256
+                    ).order_by(archive_index.c.batch)
+                )
+            ]
         return {"estimates": est, "alerts": al, "batches": bt, "archive": arc}
 
     def close(self) -> None:
@@ -279,7 +388,7 @@ _CHUNK = 400
 
 def _chunks(items: list, size: int = _CHUNK):
     for i in range(0, len(items), size):
-        yield items[i:i + size]
+        yield items[i : i + size]
 
 
 def _upsert_batches(conn, batch_rows: list[dict]) -> None:
@@ -287,17 +396,25 @@ def _upsert_batches(conn, batch_rows: list[dict]) -> None:
     rows = {b["batch"]: b for b in batch_rows}
     have = {}
     for part in _chunks(list(rows)):
-        have.update((r.batch, r._asdict()) for r in conn.execute(
-            select(batches).where(batches.c.batch.in_(part))))
+        have.update(
+            (r.batch, r._asdict())
+            for r in conn.execute(select(batches).where(batches.c.batch.in_(part)))
+        )
     new = [r for k, r in rows.items() if k not in have]
-    changed = [{**{c: v for c, v in r.items() if c != "batch"}, "key": k}
-               for k, r in rows.items() if k in have and
-               any(have[k].get(c) != v for c, v in r.items())]
+    changed = [
+        {**{c: v for c, v in r.items() if c != "batch"}, "key": k}
+        for k, r in rows.items()
+        if k in have and any(have[k].get(c) != v for c, v in r.items())
+    ]
     if new:
         conn.execute(insert(batches), new)
     for cols, group in _by_columns(changed).items():
-        conn.execute(update(batches).where(batches.c.batch == bindparam("key"))
-                     .values({c: bindparam(c) for c in cols if c != "key"}), group)
+        conn.execute(
+            update(batches)
+            .where(batches.c.batch == bindparam("key"))
+            .values({c: bindparam(c) for c in cols if c != "key"}),
+            group,
+        )
 
 
 def _by_columns(rows: list[dict]) -> dict:
@@ -315,7 +432,8 @@ def _insert_new_estimates(conn, estimate_rows: list[dict]) -> int:
     for part in _chunks(keys):
         stmt = select(estimates.c.batch, estimates.c.at_s).where(
             estimates.c.batch.in_(sorted({k[0] for k in part})),
-            estimates.c.at_s.in_(sorted({k[1] for k in part})))
+            estimates.c.at_s.in_(sorted({k[1] for k in part})),
+        )
         have.update((r[0], r[1]) for r in conn.execute(stmt))
     new, seen = [], set()
     for e in estimate_rows:
@@ -336,8 +454,12 @@ def _insert_new_kinetics(conn, kinetics_rows: list[dict]) -> None:
         rows.setdefault(k["version"], k)
     have = set()
     for part in _chunks(list(rows)):
-        have.update(r[0] for r in conn.execute(select(kinetics_versions.c.version).where(
-            kinetics_versions.c.version.in_(part))))
+        have.update(
+            r[0]
+            for r in conn.execute(
+                select(kinetics_versions.c.version).where(kinetics_versions.c.version.in_(part))
+            )
+        )
     new = [r for v, r in rows.items() if v not in have]
     for group in _by_columns(new).values():
         conn.execute(insert(kinetics_versions), group)

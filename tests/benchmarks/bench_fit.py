@@ -50,12 +50,30 @@ def make_batches(n_batches=40, n_assays=10, dt_s=5.0, seed=20261201):
             return [alpha * k * c0 ** (ORDER - 1) * max(1 - x[0], 0.0) ** ORDER]
 
         ta = np.sort(rng.uniform(1800.0, dur, n_assays))
-        sol = solve_ivp(rhs, (0.0, dur), [0.0], t_eval=ta, method="DOP853", rtol=1e-10,
-                        atol=1e-12, max_step=600.0)
+        sol = solve_ivp(
+            rhs,
+            (0.0, dur),
+            [0.0],
+            t_eval=ta,
+            method="DOP853",
+            rtol=1e-10,
+            atol=1e-12,
+            max_step=600.0,
+        )
         y = c0 * (1 - sol.y[0]) + rng.normal(0.0, 0.02, n_assays)
         t = np.arange(0.0, dur + dt_s, dt_s)
-        out.append(FitSeries(f"B{b:02d}", t, T_of(t) + rng.normal(0.0, 0.15, len(t)), c0, ta,
-                             y, "concentration", 0.02))
+        out.append(
+            FitSeries(
+                f"B{b:02d}",
+                t,
+                T_of(t) + rng.normal(0.0, 0.15, len(t)),
+                c0,
+                ta,
+                y,
+                "concentration",
+                0.02,
+            )
+        )
     return out
 
 
@@ -70,8 +88,9 @@ def ode_residuals(series, lnk, ea, order, phi, t_ref):
             T = np.interp(t, t_tr, T_tr)
             return [a * math.exp(-ea / R * (1 / T - 1 / t_ref)) * max(1 - x[0], 0.0) ** order]
 
-        sol = solve_ivp(rhs, (0.0, s.assay_t_s[-1]), [0.0], t_eval=s.assay_t_s, rtol=1e-8,
-                        atol=1e-10)
+        sol = solve_ivp(
+            rhs, (0.0, s.assay_t_s[-1]), [0.0], t_eval=s.assay_t_s, rtol=1e-8, atol=1e-10
+        )
         out.append((s.assay_value - s.c_a0 * (1 - sol.y[0])) / s.assay_sd)
     return np.concatenate(out)
 
@@ -104,8 +123,9 @@ def main() -> dict:
     ode_reps = 2
     t0 = time.perf_counter()
     for _ in range(ode_reps):
-        r_ode = ode_residuals(series, math.log(fit.k_ref), fit.ea_j_per_mol, fit.order, phi,
-                              fit.t_ref_k)
+        r_ode = ode_residuals(
+            series, math.log(fit.k_ref), fit.ea_j_per_mol, fit.order, phi, fit.t_ref_k
+        )
     ode_eval = (time.perf_counter() - t0) / ode_reps
     model._cache_x = None
     r_theta = model.fun(x)[: len(r_ode)]
@@ -114,29 +134,47 @@ def main() -> dict:
     p_global = 4  # ln k_ref, Ea, order, and one grouped column for all activities
     ode_fit_estimate = (fit.nfev + fit.njev * (p_global + 1)) * ode_eval
     report = {
-        "batches": len(series), "assays": fit.n_assays, "temperature_samples": n_samples,
-        "cores": cores, "fit_wall_s": wall, "nfev": fit.nfev, "njev": fit.njev,
-        "theta_eval_s": theta_eval, "ode_eval_s": ode_eval,
+        "batches": len(series),
+        "assays": fit.n_assays,
+        "temperature_samples": n_samples,
+        "cores": cores,
+        "fit_wall_s": wall,
+        "nfev": fit.nfev,
+        "njev": fit.njev,
+        "theta_eval_s": theta_eval,
+        "ode_eval_s": ode_eval,
         "speedup_per_evaluation": ode_eval / theta_eval,
-        "ode_fit_estimate_s": ode_fit_estimate, "speedup_whole_fit": ode_fit_estimate / wall,
+        "ode_fit_estimate_s": ode_fit_estimate,
+        "speedup_whole_fit": ode_fit_estimate / wall,
         "max_model_difference_sigma": agreement,
-        "ea_kj_per_mol": fit.ea_j_per_mol / 1e3, "order": fit.order,
+        "ea_kj_per_mol": fit.ea_j_per_mol / 1e3,
+        "order": fit.order,
     }
-    print(f"bench_fit: {len(series)} batches x 10 assays, {n_samples} temperature samples "
-          f"(5 s), {cores} cores")
-    print(f"  joint fit (cumulative Θ, analytic Jacobian): {wall:.2f} s wall "
-          f"({fit.nfev} evaluations, {fit.njev} Jacobians; aim < 10 s)")
-    print(f"  one residual+Jacobian evaluation: Θ {theta_eval * 1e3:.1f} ms; "
-          f"ODE re-integration (residuals only) {ode_eval:.2f} s "
-          f"-> {ode_eval / theta_eval:.0f}x per evaluation")
-    print(f"  ODE fit estimated from {ode_reps} timed evaluations x "
-          f"({fit.nfev} + {fit.njev} x {p_global + 1}) = {ode_fit_estimate:.0f} s "
-          f"-> {ode_fit_estimate / wall:.0f}x for the whole fit (baseline measured in this run)")
+    print(
+        f"bench_fit: {len(series)} batches x 10 assays, {n_samples} temperature samples "
+        f"(5 s), {cores} cores"
+    )
+    print(
+        f"  joint fit (cumulative Θ, analytic Jacobian): {wall:.2f} s wall "
+        f"({fit.nfev} evaluations, {fit.njev} Jacobians; aim < 10 s)"
+    )
+    print(
+        f"  one residual+Jacobian evaluation: Θ {theta_eval * 1e3:.1f} ms; "
+        f"ODE re-integration (residuals only) {ode_eval:.2f} s "
+        f"-> {ode_eval / theta_eval:.0f}x per evaluation"
+    )
+    print(
+        f"  ODE fit estimated from {ode_reps} timed evaluations x "
+        f"({fit.nfev} + {fit.njev} x {p_global + 1}) = {ode_fit_estimate:.0f} s "
+        f"-> {ode_fit_estimate / wall:.0f}x for the whole fit (baseline measured in this run)"
+    )
     lo, hi = (v / 1e3 for v in fit.ci95["ea_j_per_mol"])
     n_lo, n_hi = fit.ci95["order"]
-    print(f"  the two models agree to {agreement:.2g} assay sigma at the solution; fitted Ea "
-          f"{fit.ea_j_per_mol / 1e3:.1f} kJ/mol, 95 % [{lo:.1f}, {hi:.1f}] (true 70), order "
-          f"{fit.order:.3f} [{n_lo:.3f}, {n_hi:.3f}] (true 2)")
+    print(
+        f"  the two models agree to {agreement:.2g} assay sigma at the solution; fitted Ea "
+        f"{fit.ea_j_per_mol / 1e3:.1f} kJ/mol, 95 % [{lo:.1f}, {hi:.1f}] (true 70), order "
+        f"{fit.order:.3f} [{n_lo:.3f}, {n_hi:.3f}] (true 2)"
+    )
     return report
 
 

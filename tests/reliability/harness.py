@@ -31,9 +31,13 @@ def write_config(plant_config: Path, live_db: Path, store_db: Path, out: Path) -
 
 class Worker:
     def __init__(self, config: Path):
-        self.proc = subprocess.Popen([sys.executable, "-m", "tests.reliability.worker",
-                                      str(config)], stdin=subprocess.PIPE,
-                                     stdout=subprocess.PIPE, text=True, cwd=REPO)
+        self.proc = subprocess.Popen(
+            [sys.executable, "-m", "tests.reliability.worker", str(config)],
+            stdin=subprocess.PIPE,
+            stdout=subprocess.PIPE,
+            text=True,
+            cwd=REPO,
+        )
         assert self.proc.stdout.readline().strip() == "ready"
 
     def send(self, cmd: str) -> None:
@@ -55,8 +59,16 @@ class Worker:
         self.proc.wait(timeout=30)
 
 
-def replay_run(source_db: Path, plant_config: Path, work: Path, *, start_s: float,
-               ticks: int, step_s: float, seed: int | None) -> tuple[dict, dict]:
+def replay_run(
+    source_db: Path,
+    plant_config: Path,
+    work: Path,
+    *,
+    start_s: float,
+    ticks: int,
+    step_s: float,
+    seed: int | None,
+) -> tuple[dict, dict]:
     """One replay; with a seed, SIGKILL the monitor 1-3 times at random moments."""
     work.mkdir(parents=True, exist_ok=True)
     live, store = work / "live.db", work / "store.db"
