@@ -63,6 +63,17 @@ def posterior_for(state: BatchState, at_s: float, settings: EstimatorSettings):
     """Activity posterior from the assays sampled at or before ``at_s``."""
     sel = state.assay_t_s <= at_s
     t, y = state.assay_t_s[sel], state.assay_value[sel]
+    # the posterior depends only on the assays and on the trace up to them: reuse it
+    # while neither changed (most polls bring temperatures, not assays)
+    key = (
+        t.tobytes(),
+        y.tobytes(),
+        state.theta_at(t).tobytes(),
+        state.c_a0,
+        settings.mismatch_sigma,
+    )
+    if state.posterior_cache is not None and state.posterior_cache[0] == key:
+        return state.posterior_cache[1], t, y
     post = activity_posterior(
         lambda phi: state.predict_assays(phi, t),
         y,
@@ -70,6 +81,7 @@ def posterior_for(state: BatchState, at_s: float, settings: EstimatorSettings):
         prior_sd(state.kinetics),
         mismatch_sigma=settings.mismatch_sigma,
     )
+    state.posterior_cache = (key, post)
     return post, t, y
 
 
@@ -87,12 +99,17 @@ def _future_profile(state: BatchState, at_s: float, horizon_s: float):
     return grid, T_now + blend * (planned - T_now)
 
 
-def _timeline(state: BatchState, at_s: float, horizon_s: float):
-    """Measured trace up to ``at_s`` (held after the last sample) joined to the forecast."""
+def _timeline(state: BatchState, at_s: float, horizon_s: float, include_past: bool = True):
+    """Measured trace up to ``at_s`` (held after the last sample) joined to the forecast.
+
+    Without ``include_past`` only the last measured sample starts the timeline: enough
+    when no draw has reached the target yet, and O(horizon) instead of O(batch).
+    """
     tr, kin = state.trace, state.kinetics
     n = int(np.searchsorted(tr.t_s[: len(tr)], at_s, side="right"))
-    t_m, T_m = tr.t_s[:n], tr.T_K[:n]
-    th, s1, s2 = tr.theta[:n], tr.s1[:n], tr.s2[:n]
+    first = 0 if include_past else n - 1
+    t_m, T_m = tr.t_s[first:n], tr.T_K[first:n]
+    th, s1, s2 = tr.theta[first:n], tr.s1[first:n], tr.s2[first:n]
     t_f, T_f = _future_profile(state, at_s, horizon_s)
     t_link = np.concatenate([[t_m[-1]], t_f])
     T_link = np.concatenate([[T_m[-1]], T_f])
@@ -232,26 +249,32 @@ def estimate(
 
 def _quantiles(t_end):
     t_end = np.asarray(t_end, dtype=float)
-    out = []
-    for p in (10, 50, 90):
-        v = np.percentile(t_end, p, method="linear") if np.isfinite(t_end).any() else np.inf
-        out.append(float(v) if np.isfinite(v) else None)
-    return out
+    if not np.isfinite(t_end).any():
+        return [None, None, None]
+    with np.errstate(invalid="ignore"):  # inf - inf inside the unreached tail
+        q = np.percentile(t_end, [10, 50, 90], method="linear")
+    return [float(v) if np.isfinite(v) else None for v in q]
 
 
 def _forecast_separable(state, at_s, post, settings):
     kin, law = state.kinetics, state.kinetics.law
     horizon_s = settings.horizon_h * 3600.0
-    t, _T, theta, S1, S2, _ = _timeline(state, at_s, horizon_s)
-    ln_th, m1, v = _log_profile(theta, S1, S2)
+    prof: dict = {}
+
+    def build(include_past: bool) -> None:
+        t, _T, theta, S1, S2, _ = _timeline(state, at_s, horizon_s, include_past)
+        ln_th, m1, v = _log_profile(theta, S1, S2)
+        prof.update(t=t, theta=theta, ln_th=ln_th, m1=m1, v=v)
+
+    build(include_past=False)
     phi, d_ea, d_n, rng = _draws(state, post, settings)
     gap_var = state.trace.gap_log_variance(min(at_s, state.trace.last_t_s))
     eps = rng.normal(0.0, np.sqrt(gap_var), len(phi)) if gap_var > 0 else np.zeros(len(phi))
-    th_now = float(np.interp(at_s, t, theta))
+    th_now = float(np.interp(at_s, prof["t"], prof["theta"]))
 
     def level(idx):  # ln Theta_j(t[idx]) per draw
-        base = ln_th[idx] + d_ea * m1[idx] + 0.5 * d_ea**2 * v[idx]
-        past = np.minimum(1.0, th_now / np.maximum(theta[idx], 1e-300))
+        base = prof["ln_th"][idx] + d_ea * prof["m1"][idx] + 0.5 * d_ea**2 * prof["v"][idx]
+        past = np.minimum(1.0, th_now / np.maximum(prof["theta"][idx], 1e-300))
         return base + eps * past
 
     order = kin.order + d_n
@@ -268,20 +291,20 @@ def _forecast_separable(state, at_s, post, settings):
         w = post.fisher / post.fisher.sum() if post.fisher.sum() > 0 else None
         t_used = state.assay_t_s[state.assay_t_s <= at_s][post.used]
         w = w[post.used] if w is not None else np.full(len(t_used), 1 / len(t_used))
-        th_a = state.theta_at(t_used)
+        th_a, s1_a, s2_a = state.moments_at(t_used)
         ln_a = np.log(np.maximum(th_a, 1e-300)) @ w
-        _, m1_a, v_a = _log_profile(
-            np.interp(t_used, t, theta), np.interp(t_used, t, S1), np.interp(t_used, t, S2)
-        )
+        _, m1_a, v_a = _log_profile(th_a, s1_a, s2_a)
         m1_a, v_a = m1_a @ w, v_a @ w
         X_a = law.G_inv(np.exp(phi) * state.rate_scale() * np.exp(ln_a))
         ln_c = np.log(np.maximum(G(X_a), 1e-300)) - (ln_a + d_ea * m1_a + 0.5 * d_ea**2 * v_a)
     else:
         ln_c = phi + np.log(scale)
-    i_now = int(np.searchsorted(t, at_s, side="left"))
-    i_now = min(i_now, len(t) - 1)
+    i_now = min(int(np.searchsorted(prof["t"], at_s, side="left")), len(prof["t"]) - 1)
     X_now = G_inv(np.exp(ln_c + level(np.full(len(phi), i_now))))
     target = state.recipe.target_conversion
+    if np.any(X_now >= target):
+        build(include_past=True)  # some draws crossed before now: search the whole trace
+    t = prof["t"]
     if target >= law.x_max:
         return (
             X_now,

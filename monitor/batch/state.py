@@ -10,7 +10,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..kinetics import Kinetics
-from ..physics.arrhenius import arrhenius_factor, equilibrium_constant
+from ..physics.arrhenius import R_J_PER_MOL_K, arrhenius_factor, equilibrium_constant
 from ..physics.trace import (
     ThetaTrace,
     refine_trace,
@@ -61,6 +61,7 @@ class BatchState:
     assay_t_s: np.ndarray = field(default_factory=lambda: np.empty(0))
     assay_value: np.ndarray = field(default_factory=lambda: np.empty(0))
     # reversible law only: X on a fixed grid of ln(activity), at each trace sample
+    posterior_cache: tuple | None = field(default=None, repr=False)
     phi_grid: np.ndarray = field(default_factory=lambda: np.empty(0))
     x_grid: np.ndarray = field(default_factory=lambda: np.empty((0, 0)))
 
@@ -133,21 +134,29 @@ class BatchState:
         self.assay_t_s, self.assay_value = t[last], v[last]
 
     # ---- model read-outs
-    def theta_at(self, t_s) -> np.ndarray:
-        """``Theta`` [s] at times, holding the last temperature after the last sample."""
+    def moments_at(self, t_s):
+        """``(Theta, S1, S2)`` at times, holding the last temperature after the last sample."""
         tr = self.trace
         t_s = np.asarray(t_s, dtype=float)
         n = len(tr)
         if n == 0:
-            return np.zeros_like(t_s)
-        ts, th = tr.t_s[:n], tr.theta[:n]
-        out = np.interp(t_s, ts, th)
+            z = np.zeros_like(t_s)
+            return z, z, z
+        ts = tr.t_s[:n]
+        th, s1, s2 = (np.interp(t_s, ts, arr[:n]) for arr in (tr.theta, tr.s1, tr.s2))
         after = t_s > ts[-1]
         if np.any(after):
             kin = self.kinetics
-            f_last = arrhenius_factor(tr.T_K[n - 1], kin.ea_j_per_mol, kin.t_ref_k)
-            out = np.where(after, th[-1] + (t_s - ts[-1]) * f_last, out)
-        return out
+            T_last = tr.T_K[n - 1]
+            f = arrhenius_factor(T_last, kin.ea_j_per_mol, kin.t_ref_k)
+            g = -(1.0 / T_last - 1.0 / kin.t_ref_k) / R_J_PER_MOL_K
+            dt = np.where(after, t_s - ts[-1], 0.0) * f
+            th, s1, s2 = th + dt, s1 + dt * g, s2 + dt * g * g
+        return th, s1, s2
+
+    def theta_at(self, t_s) -> np.ndarray:
+        """``Theta`` [s] at times, holding the last temperature after the last sample."""
+        return self.moments_at(t_s)[0]
 
     def rate_scale(self) -> float:
         """``k_ref * s(C_A0)``: multiplies ``alpha * Theta`` to give ``G(X)`` [-/s]."""
