@@ -63,6 +63,9 @@ class Monitor:
 
             self.writer = WriteBack(cfg.writeback)
         self._wb_backlog: list = []
+        self._last_estimate: dict = {}
+        # data older than this (by the injected clock) is stale: a gap, or the feed stopped
+        self._stale_after_s = max(cfg.estimator.max_gap_s, 3.0 * cfg.poll.interval_s)
         self.settings = cfg.estimator
         self.states: dict = {}
         self.known: dict[str, Batch] = {}
@@ -150,8 +153,15 @@ class Monitor:
                 if b.end_s is not None:
                     at = min(at, b.end_s)
                 last_data = at if last_data is None else max(last_data, at)
+                key = (at, b.end_s, st.assay_t_s.tobytes(), st.assay_value.tobytes())
+                previous = self._last_estimate.get(b.batch)
+                if previous is not None and previous[0] == key:
+                    # nothing new for this batch: the same estimate; only staleness can change
+                    changes.extend(self._alerts(b, previous[1], now))
+                    continue
                 rc = self.cfg.recipe(b.recipe)
                 est = estimate(st, at, self.settings, safety=rc.safety)
+                self._last_estimate[b.batch] = (key, est)
                 doc = estimate_json(est)
                 est_rows.append(_estimate_row(est, doc))
                 wb_items.append((b.unit, est_rows[-1]))
@@ -181,6 +191,7 @@ class Monitor:
         self.watermark = poll.watermark
         for b in rep.completed:
             self.states.pop(b, None)
+            self._last_estimate.pop(b, None)
             self._store_running.discard(b)
         self._store_running.update(r["batch"] for r in batch_rows if r["state"] == "running")
         if self.writer is not None:
@@ -212,8 +223,8 @@ class Monitor:
             "target_unreachable": ("warning", est.predicted_end_s is None, est.forecast_note),
             "stale_data": (
                 "warning",
-                any(w.startswith("temperature stale") for w in est.warnings),
-                "temperature data stale",
+                b.end_s is None and now - est.at_s > self._stale_after_s,
+                f"no new temperature sample for {(now - est.at_s) / 60:.0f} min",
             ),
         }
         out = []
@@ -264,6 +275,7 @@ class Monitor:
         # nothing was committed: forget in-memory progress so the next cycle rebuilds
         self.states.clear()
         self.known.clear()
+        self._last_estimate.clear()
         self.watermark = self.store.load_watermark()
         self._store_running = set(self.store.running_batches())
         self.refresh_alert_ids()

@@ -126,3 +126,30 @@ def test_watch_prints_plain_lines_off_a_terminal(sample_plant, tmp_path):
     assert len(lines) == 2 * (1 + len(running))
     assert all(any(b in line for line in lines) for b in running)
     assert "\x1b[" not in r.stdout  # no terminal control codes in a pipe
+
+
+def test_stale_feed_raises_an_alert_and_unchanged_batches_are_not_re_estimated(
+    sample_plant, tmp_path, monkeypatch
+):
+    from datetime import datetime
+
+    import monitor.service as service
+    from monitor.config import load_config
+    from monitor.service import Monitor
+
+    cfg = load_config(_config(sample_plant, tmp_path))
+    end = datetime.fromisoformat(sample_plant.truth["export_end"]).timestamp()
+    clock = {"t": end + 60.0}
+    mon = Monitor(cfg, clock=lambda: clock["t"])
+    mon.run_cycle_safely()
+    assert not [a for a in mon.store.open_alerts() if a["kind"] == "stale_data"]
+    calls = []
+    real = service.estimate
+    monkeypatch.setattr(service, "estimate", lambda *a, **k: calls.append(1) or real(*a, **k))
+    clock["t"] = end + 2 * 3600.0  # the feed stopped two hours ago
+    rep = mon.run_cycle_safely()
+    assert rep.estimates_added == 0 and calls == []  # nothing new: nothing recomputed
+    stale = [a for a in mon.store.open_alerts() if a["kind"] == "stale_data"]
+    running = {b["batch"] for b in sample_plant.truth["batches"] if b["state"] == "running"}
+    assert {a["batch"] for a in stale} == running
+    assert all("120 min" in a["message"] or "119 min" in a["message"] for a in stale)
