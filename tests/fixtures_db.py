@@ -346,3 +346,36 @@ def exports():
     yield make
     for export in made:
         export.drop()
+
+
+@pytest.fixture(
+    params=[
+        pytest.param("sqlite", id="sqlite"),
+        pytest.param("postgres", id="postgres", marks=pytest.mark.postgres),
+        pytest.param("mariadb", id="mariadb", marks=pytest.mark.mariadb),
+    ]
+)
+def store_url(request, tmp_path):
+    """A fresh, empty database for the monitor's store on each backend (dropped after)."""
+    import uuid
+
+    from sqlalchemy import create_engine, text
+    from sqlalchemy.engine import make_url
+
+    if request.param == "sqlite":
+        yield f"sqlite:///{tmp_path / 'store.db'}"
+        return
+    server = require_server(POSTGRES_URL if request.param == "postgres" else MARIADB_URL)
+    name = f"convmon_store_{uuid.uuid4().hex[:12]}"  # made here, not outside input
+    admin = create_engine(server, isolation_level="AUTOCOMMIT")
+    with admin.connect() as conn:
+        conn.execute(text(f"CREATE DATABASE {name}"))
+    try:
+        yield make_url(server).set(database=name).render_as_string(hide_password=False)
+    finally:
+        with admin.connect() as conn:
+            if request.param == "postgres":
+                conn.execute(text(f"DROP DATABASE {name} WITH (FORCE)"))
+            else:
+                conn.execute(text(f"DROP DATABASE {name}"))
+        admin.dispose()
