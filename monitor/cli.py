@@ -127,6 +127,17 @@ def build_parser() -> argparse.ArgumentParser:
     p = add("status", "running batches, their estimates and open alerts", "convmon status --json")
     _common(p)
 
+    p = add(
+        "alerts",
+        "alert list; 'alerts ack ID --by NAME' acknowledges one",
+        "convmon alerts --open --json",
+    )
+    _common(p)
+    p.add_argument("action", nargs="?", choices=["ack"], help="ack: acknowledge alert ID")
+    p.add_argument("alert_id", nargs="?", type=int, metavar="ID")
+    p.add_argument("--open", action="store_true", help="only alerts whose condition holds")
+    p.add_argument("--by", metavar="NAME", help="who acknowledges (with ack)")
+
     p = add("watch", "live-refreshing terminal view of status", "convmon watch")
     _common(p, json_flag=False)
     p.add_argument("--interval", type=float, default=5.0, help="refresh period [s]")

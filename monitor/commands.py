@@ -296,3 +296,46 @@ def cmd_fit(args) -> int:
             )
     _out(args, doc, _fit_text(doc))
     return 0
+
+
+def _alert_json(a: dict) -> dict:
+    return {
+        "id": a["id"],
+        "batch": a["batch"],
+        "kind": a["kind"],
+        "severity": a["severity"],
+        "state": a["state"],
+        "raised_at": formats.iso(a["raised_at_s"]),
+        "cleared_at": formats.iso(a["cleared_at_s"]),
+        "acked_by": a["acked_by"],
+        "message": a["message"],
+    }
+
+
+def cmd_alerts(args) -> int:
+    from .errors import UsageError
+    from .store.db import Store
+
+    cfg = load_config(args.config)
+    store = Store(cfg.store.url)
+    try:
+        if args.action == "ack":
+            if args.alert_id is None or not args.by:
+                raise UsageError("usage: convmon alerts ack ID --by NAME")
+            a = _alert_json(store.ack_alert(args.alert_id, args.by))
+            _out(
+                args,
+                a,
+                f"alert {a['id']} ({a['kind']}, {a['batch']}) acknowledged by {a['acked_by']}",
+            )
+            return 0
+        docs = [_alert_json(a) for a in store.list_alerts(open_only=args.open)]
+    finally:
+        store.close()
+    lines = [
+        f"{d['id']:>5} {d['state']:<8} {d['severity']:<8} {d['batch']:<12} {d['kind']:<20} "
+        f"{d['raised_at']}  {d['message']}"
+        for d in docs
+    ] or ["no alerts"]
+    _out(args, {"alerts": docs}, "\n".join(lines))
+    return 0

@@ -305,11 +305,31 @@ class Store:
         return dict(row._mapping) if row else None
 
     def open_alerts(self, batch: str | None = None) -> list[dict]:
-        stmt = select(alerts).where(alerts.c.state == "open")
+        """Alerts whose condition still holds: open, or acknowledged but not cleared."""
+        return self.list_alerts(open_only=True, batch=batch)
+
+    def list_alerts(self, *, open_only: bool = False, batch: str | None = None) -> list[dict]:
+        stmt = select(alerts)
+        if open_only:
+            stmt = stmt.where(alerts.c.state.in_(("open", "acked")))
         if batch:
             stmt = stmt.where(alerts.c.batch == batch)
         with self.engine.connect() as conn:
             return [dict(r._mapping) for r in conn.execute(stmt.order_by(alerts.c.id))]
+
+    def ack_alert(self, alert_id: int, by: str) -> dict:
+        """Acknowledge an alert: who saw it is recorded; a cleared alert stays cleared."""
+        from ..errors import UsageError
+
+        with self.engine.begin() as conn:
+            row = conn.execute(select(alerts).where(alerts.c.id == alert_id)).first()
+            if row is None:
+                raise UsageError(f"no alert with id {alert_id}")
+            state = "acked" if row.state in ("open", "acked") else row.state
+            conn.execute(
+                update(alerts).where(alerts.c.id == alert_id).values(acked_by=by, state=state)
+            )
+            return dict(conn.execute(select(alerts).where(alerts.c.id == alert_id)).one()._mapping)
 
     def running_batches(self) -> list[str]:
         with self.engine.connect() as conn:
