@@ -68,7 +68,6 @@ class Monitor:
         self._stale_after_s = max(cfg.estimator.max_gap_s, 3.0 * cfg.poll.interval_s)
         self.settings = cfg.estimator
         self.states: dict = {}
-        self.known: dict[str, Batch] = {}
         self.models: dict = {}
         self.watermark = self.store.load_watermark()
         self._open_alerts = {(a["batch"], a["kind"]): a for a in self.store.open_alerts()}
@@ -112,7 +111,6 @@ class Monitor:
         batch_rows, est_rows, kin_rows, changes, wb_items = [], [], [], [], []
         by_unit: dict = {}
         for b in batches:
-            self.known[b.batch] = b
             if b.batch not in self.states:
                 # a past batch is not monitored, unless the store still has it running
                 # (it ended while the monitor was down: it gets its final estimate)
@@ -147,7 +145,9 @@ class Monitor:
         for bs in by_unit.values():
             for b in bs:
                 st = self.states[b.batch]
-                if len(st.trace) == 0:
+                if len(st.trace) == 0:  # no good temperature yet: nothing to estimate
+                    if b.end_s is not None:
+                        rep.completed.append(b.batch)
                     continue
                 at = float(st.trace.last_t_s)
                 if b.end_s is not None:
@@ -274,7 +274,6 @@ class Monitor:
         self.store.record_failure(self.clock(), "cycle failed")
         # nothing was committed: forget in-memory progress so the next cycle rebuilds
         self.states.clear()
-        self.known.clear()
         self._last_estimate.clear()
         self.watermark = self.store.load_watermark()
         self._store_running = set(self.store.running_batches())
