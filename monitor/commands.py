@@ -26,29 +26,27 @@ def cmd_batches(args) -> int:
     if not docs:
         print("no batches found")
         return 0
-    from rich.console import Console
     from rich.table import Table
 
+    from .outputs.board import console
+
     table = Table(title=f"{len(docs)} batches")
-    for col in ("batch", "unit", "recipe", "start", "end", "state", "n_temperature", "n_assays"):
-        table.add_column(col)
-    for d in docs:
+    zone = cfg.site.timezone
+    for col in ("batch", "unit", "recipe", "start", "end", "state", "temperatures", "assays"):
+        table.add_column(col, justify="right" if col in ("temperatures", "assays") else "left")
+    for b, d in zip(batches, docs, strict=True):
         table.add_row(
-            *[
-                ("" if d[c] is None else str(d[c]))
-                for c in (
-                    "batch",
-                    "unit",
-                    "recipe",
-                    "start",
-                    "end",
-                    "state",
-                    "n_temperature",
-                    "n_assays",
-                )
-            ]
+            d["batch"],
+            d["unit"],
+            d["recipe"],
+            formats.local(b.start_s, zone),
+            formats.local(b.end_s, zone),
+            d["state"],
+            str(d["n_temperature"]),
+            str(d["n_assays"]),
         )
-    Console().print(table)
+    table.caption = f"times in {zone}; sample counts are good samples in the batch window"
+    console().print(table)
     return 0
 
 
@@ -103,9 +101,9 @@ def cmd_status(args) -> int:
         return 0
     import time as _time
 
-    from rich.console import Console
+    from .outputs.board import console
 
-    Console().print(status_table(doc, cfg.site.timezone, now_s=_time.time()))
+    console().print(status_table(doc, cfg.site.timezone, now_s=_time.time()))
     return 0
 
 

@@ -15,7 +15,6 @@ from __future__ import annotations
 
 import shutil
 import sqlite3
-import sys
 import time
 from pathlib import Path
 
@@ -137,14 +136,14 @@ def _fit_kinetics(out: Path, cfg_hist, before_s: float, log) -> dict[str, Path]:
 
 def run_demo(out_dir: str | Path = "var/demo", *, fast: bool = False, stream=None) -> dict:
     """Run the demo; returns the summary it prints."""
-    from rich.console import Console
     from rich.live import Live
 
     from .commands import status_doc
+    from .outputs.board import console as board_console
     from .outputs.board import status_table
     from .service import Monitor
 
-    console = Console(file=stream or sys.stdout)
+    console = board_console(stream)
     log = console.print
     out = Path(out_dir).resolve()
     out.mkdir(parents=True, exist_ok=True)
@@ -158,7 +157,7 @@ def run_demo(out_dir: str | Path = "var/demo", *, fast: bool = False, stream=Non
         log("generating the sample plant export ...")
         generate(SAMPLE_DB)
     export_end = _export_end(SAMPLE_DB)
-    span_h = 8.0 if fast else 36.0
+    span_h = 8.0 if fast else 54.0  # the last 54 h: three batches start to end, two running
     replay_start = export_end - span_h * 3600
     for f in ("convmon.db", "live.db"):
         (out / f).unlink(missing_ok=True)
@@ -172,7 +171,7 @@ def run_demo(out_dir: str | Path = "var/demo", *, fast: bool = False, stream=Non
     clock = {"t": replay_start}
     replay.advance_to(replay_start)
     monitor = Monitor(cfg, clock=lambda: clock["t"])
-    step_s = 2160.0 if not fast else 1800.0  # 36 plant-minutes a poll: 60 polls for 36 h
+    step_s = 3240.0 if not fast else 1800.0  # 54 plant-minutes a poll: 60 polls for 54 h
     ticks = int(span_h * 3600 / step_s)
     log(f"2. replaying {span_h:g} plant-hours in {ticks} polls of {step_s / 60:g} plant-min")
     history: dict = {}
