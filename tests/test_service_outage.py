@@ -43,7 +43,7 @@ import pytest
 from sqlalchemy import create_engine, event, select, text
 
 from monitor.config import config_from_dict
-from monitor.historian.model import to_datetime
+from monitor.historian.model import Batch, to_datetime
 from monitor.service import Monitor
 from monitor.store.db import alerts, batches, estimates
 from tests.fixtures_db import POSTGRES_URL, make_export, require_server
@@ -675,9 +675,9 @@ def test_bad_live_rows_never_stop_the_service(pg, plant, clean_run, tmp_path, ca
             if 4 <= k <= 14:  # all three batches run: bad rows arrive with the good ones
                 running = sorted(
                     (
-                        b
-                        for b in run.monitor.known.values()
-                        if b.end_s is None and b.batch in run.monitor.states
+                        Batch(st.batch, st.unit, st.recipe.name, st.start_s, st.end_s)
+                        for st in run.monitor.states.values()
+                        if st.end_s is None
                     ),
                     key=lambda b: b.batch,
                 )
