@@ -18,7 +18,6 @@ import numpy as np
 from ..config import EstimatorConfig
 from ..physics.trace import (
     plan_temperature,
-    reversible_segments,
     segment_integrals,
     step_reversible,
 )
@@ -331,22 +330,12 @@ def _forecast_separable(state, at_s, post, settings):
 
 def _forecast_reversible(state, at_s, post, settings):
     """Reversible law: X on the activity grid carried along the plan; draws interpolate."""
-    kin, law = state.kinetics, state.kinetics.law
     horizon_s = settings.horizon_h * 3600.0
     X_at_nodes = state.conversion_at(np.array([at_s]), np.exp(state.phi_grid))[:, 0]
     t_f, T_f = _future_profile(state, at_s, horizon_s)
     step = 4  # 4-minute steps are ample for a linear law with minute-scale dynamics
     t_f, T_f = t_f[::step], T_f[::step]
-    C, A = reversible_segments(
-        t_f,
-        T_f,
-        kin.ea_j_per_mol,
-        kin.t_ref_k,
-        kin.k_ref,
-        law.k_eq_ref,
-        law.dh_rxn_j_per_mol,
-        law.theta_r,
-    )
+    C, A = state.reversible_coefficients(t_f, T_f)
     traj = step_reversible(X_at_nodes, np.exp(state.phi_grid), C, A)  # (steps, nodes)
     target = state.recipe.target_conversion
     t_node = np.full(len(state.phi_grid), np.inf)

@@ -107,9 +107,16 @@ class BatchState:
         # long intervals (gaps, coarse traces) are cut: the step freezes X* per interval
         scale = max(abs(kin.ea_j_per_mol), abs(law.dh_rxn_j_per_mol), 1.0)
         t_f, T_f, at = refine_trace(tr.t_s[i0:n], tr.T_K[i0:n], scale, kin.t_ref_k)
-        C, A = reversible_segments(
-            t_f,
-            T_f,
+        C, A = self.reversible_coefficients(t_f, T_f)
+        steps = step_reversible(x0, np.exp(self.phi_grid), C, A)[at[1:] - 1]
+        self.x_grid = np.vstack([self.x_grid[:i0], x0[None, :], steps])
+
+    def reversible_coefficients(self, t_s, T_K):
+        """`reversible_segments` with this batch's kinetics, over a trace [s], [K]."""
+        kin, law = self.kinetics, self.kinetics.law
+        return reversible_segments(
+            t_s,
+            T_K,
             kin.ea_j_per_mol,
             kin.t_ref_k,
             kin.k_ref,
@@ -117,8 +124,6 @@ class BatchState:
             law.dh_rxn_j_per_mol,
             law.theta_r,
         )
-        steps = step_reversible(x0, np.exp(self.phi_grid), C, A)[at[1:] - 1]
-        self.x_grid = np.vstack([self.x_grid[:i0], x0[None, :], steps])
 
     def add_assays(self, t_s, values) -> None:
         """Add assays at their sample times [s] (any arrival order; a repeat replaces)."""
@@ -181,7 +186,7 @@ class BatchState:
 
     def _reversible_at(self, t_s, alpha):
         """X (len(alpha) x len(t)) from the activity grid; T held after the last sample."""
-        kin, law, tr = self.kinetics, self.kinetics.law, self.trace
+        tr = self.trace
         n = len(tr)
         t_s = np.atleast_1d(np.asarray(t_s, dtype=float))
         phi = np.log(np.atleast_1d(np.asarray(alpha, dtype=float)))
@@ -196,16 +201,7 @@ class BatchState:
                 hi = self.x_grid[min(i + 1, n - 1)]
                 nodes[j] = self.x_grid[i] + np.clip(frac, 0.0, 1.0) * (hi - self.x_grid[i])
             else:
-                C, A = reversible_segments(
-                    [ts[-1], t],
-                    [tr.T_K[n - 1]] * 2,
-                    kin.ea_j_per_mol,
-                    kin.t_ref_k,
-                    kin.k_ref,
-                    law.k_eq_ref,
-                    law.dh_rxn_j_per_mol,
-                    law.theta_r,
-                )
+                C, A = self.reversible_coefficients([ts[-1], t], [tr.T_K[n - 1]] * 2)
                 nodes[j] = step_reversible(self.x_grid[-1], np.exp(self.phi_grid), C, A)[-1]
         return np.stack([np.interp(phi, self.phi_grid, nodes[j]) for j in range(len(t_s))], axis=1)
 
