@@ -740,13 +740,17 @@ def write_plots(fit: PlantFit, out: str | Path) -> dict[str, Path]:
     color = dict(c=series[used], cmap="viridis", vmin=0, vmax=max(len(rs) - 1, 1), s=14, alpha=0.8)
     left_out = dict(s=40, marker="x", color="red", label="left out (outlier)")
 
+    def points(ax, x, y, legend_loc: str) -> None:
+        """Used assays coloured by series; outliers left out of the fit as red crosses."""
+        ax.scatter(x[used], y[used], **color)
+        if (~used).any():
+            ax.scatter(x[~used], y[~used], **left_out)
+            ax.legend(loc=legend_loc)
+
     fig = Figure(figsize=(6.0, 6.0), dpi=110)
     FigureCanvasAgg(fig)
     ax = fig.add_subplot()
-    ax.scatter(pred[used], obs[used], **color)
-    if (~used).any():
-        ax.scatter(pred[~used], obs[~used], **left_out)
-        ax.legend(loc="upper left")
+    points(ax, pred, obs, "upper left")
     lo, hi = float(min(obs.min(), pred.min())), float(max(obs.max(), pred.max()))
     ax.plot([lo, hi], [lo, hi], color="black", lw=1)
     ax.set_xlabel("predicted assay")
@@ -762,10 +766,7 @@ def write_plots(fit: PlantFit, out: str | Path) -> dict[str, Path]:
     fig = Figure(figsize=(8.0, 4.5), dpi=110)
     FigureCanvasAgg(fig)
     ax = fig.add_subplot()
-    ax.scatter(t_h[used], res[used], **color)
-    if (~used).any():
-        ax.scatter(t_h[~used], res[~used], **left_out)
-        ax.legend(loc="upper right")
+    points(ax, t_h, res, "upper right")
     ax.axhline(0.0, color="black", lw=1)
     ax.set_xlabel("time since batch start [h]")
     ax.set_ylabel("observed - predicted [assay units]")

@@ -36,16 +36,25 @@ class SamplePlant:
     generation_s: float  # wall time of generate() [s]
 
 
+def write_config(template: Path, db_path: Path, out: Path, *, store_db: Path | None = None) -> Path:
+    """Copy a configuration to ``out``, its historian pointed at the SQLite ``db_path``.
+
+    The store goes to ``store_db`` (default: ``convmon.db`` beside ``out``); kinetics
+    paths are resolved against the template's folder, so the copy works from anywhere.
+    """
+    data = tomllib.loads(Path(template).read_text(encoding="utf-8"))
+    data["historian"]["url"] = f"sqlite:///{Path(db_path).resolve()}"
+    store = Path(store_db) if store_db else Path(out).parent / "convmon.db"
+    data["store"]["url"] = f"sqlite:///{store.resolve()}"
+    for recipe in data["recipes"].values():
+        recipe["kinetics"] = str((Path(template).parent / recipe["kinetics"]).resolve())
+    Path(out).write_text(tomli_w.dumps(data), encoding="utf-8")
+    return Path(out)
+
+
 def write_plant_config(db_path: Path, folder: Path) -> Path:
     """Copy ``config/sample_plant.toml`` into ``folder``, pointed at ``db_path``."""
-    data = tomllib.loads(PLANT_CONFIG.read_text(encoding="utf-8"))
-    data["historian"]["url"] = f"sqlite:///{Path(db_path).resolve()}"
-    data["store"]["url"] = f"sqlite:///{(folder / 'convmon.db').resolve()}"
-    for recipe in data["recipes"].values():
-        recipe["kinetics"] = str((PLANT_CONFIG.parent / recipe["kinetics"]).resolve())
-    path = folder / "sample_plant.toml"
-    path.write_text(tomli_w.dumps(data), encoding="utf-8")
-    return path
+    return write_config(PLANT_CONFIG, db_path, folder / "sample_plant.toml")
 
 
 def build_plant(folder: Path, seed: int = DEFAULT_SEED, days: float | None = None) -> SamplePlant:

@@ -11,7 +11,6 @@ from __future__ import annotations
 import hashlib
 import shutil
 import sqlite3
-import tomllib
 from collections import Counter
 from datetime import datetime
 from pathlib import Path
@@ -19,13 +18,13 @@ from zoneinfo import ZoneInfo
 
 import numpy as np
 import pytest
-import tomli_w
 from numpy.testing import assert_allclose
 
 from monitor.config import config_from_dict, load_config
 from monitor.errors import SchemaError
 from monitor.historian.reader import HistorianReader
 from sample_historian.other_schema import REACTORS, generate_other
+from tests.fixtures_plant import write_config
 
 REPO = Path(__file__).resolve().parents[1]
 CONFIG = REPO / "config" / "other_schema.toml"
@@ -36,14 +35,7 @@ ALL_POINTS = [p for r in REACTORS.values() for p in r[:3] if p]
 
 def _config_for(db: Path, folder: Path) -> Path:
     """config/other_schema.toml pointed at ``db`` (kinetics paths made absolute)."""
-    data = tomllib.loads(CONFIG.read_text(encoding="utf-8"))
-    data["historian"]["url"] = f"sqlite:///{db}"
-    data["store"]["url"] = f"sqlite:///{folder / 'convmon.db'}"
-    for recipe in data["recipes"].values():
-        recipe["kinetics"] = str((CONFIG.parent / recipe["kinetics"]).resolve())
-    path = folder / "other_schema.toml"
-    path.write_text(tomli_w.dumps(data), encoding="utf-8")
-    return path
+    return write_config(CONFIG, db, folder / "other_schema.toml")
 
 
 @pytest.fixture(scope="module")

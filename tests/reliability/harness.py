@@ -11,22 +11,16 @@ import time
 from datetime import datetime
 from pathlib import Path
 
-import tomli_w
-
 from monitor.demo import Replay
 from monitor.store.db import Store
+from tests import fixtures_plant
 
 REPO = Path(__file__).resolve().parents[2]
 
 
 def write_config(plant_config: Path, live_db: Path, store_db: Path, out: Path) -> Path:
-    import tomllib
-
-    data = tomllib.loads(plant_config.read_text())
-    data["historian"]["url"] = f"sqlite:///{live_db}"
-    data["store"]["url"] = f"sqlite:///{store_db}"
-    out.write_text(tomli_w.dumps(data))
-    return out
+    """The plant's configuration pointed at a live replay file and a store of its own."""
+    return fixtures_plant.write_config(plant_config, live_db, out, store_db=store_db)
 
 
 class Worker:
