@@ -26,6 +26,7 @@ test: $(STAMP)
 lint: $(STAMP)
 	$(BIN)/ruff check monitor tests sample_historian
 	$(BIN)/ruff format --check monitor tests sample_historian
+	$(BIN)/lint-imports
 
 bench: $(STAMP)
 	$(BIN)/python -m tests.benchmarks

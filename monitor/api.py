@@ -2,34 +2,27 @@
 
 from __future__ import annotations
 
-from datetime import datetime
-
+from . import timefmt
 from .batch.estimator import Estimate, estimate
-from .batch.state import BatchState, RecipeModel
+from .batch.findings import Finding, Kind, Severity
 from .config import Config
-from .errors import ConfigError, DataQualityError, UsageError
-from .historian.model import Batch, BatchData, to_epoch
-from .kinetics import Kinetics, load_kinetics
+from .errors import DataQualityError, UsageError
+from .historian.model import Batch
+from .historian.reader import HistorianReader
+from .service.registry import build_state, recipe_model
+from .store import Store
 
 
 def parse_time(text: str, zone: str) -> float:
-    """An ISO-8601 time from the command line; without an offset it is in ``zone``."""
-    from zoneinfo import ZoneInfo
-
+    """A time from the command line (ISO 8601; without an offset it is in ``zone``) [s]."""
     try:
-        dt = datetime.fromisoformat(text)
-    except ValueError:
-        raise UsageError(
-            f"--at: expected an ISO-8601 time such as 2026-10-05T14:30, got {text!r}"
-        ) from None
-    if dt.tzinfo is None:
-        dt = dt.replace(tzinfo=ZoneInfo(zone))
-    return to_epoch(dt)
+        return timefmt.parse_time(text, zone)
+    except ValueError as exc:
+        raise UsageError(f"--at: {exc}") from None
 
 
-def open_reader(cfg: Config):
-    from .historian.reader import HistorianReader
-
+def open_reader(cfg: Config) -> HistorianReader:
+    """A reader of the site's historian export (read-only)."""
     return HistorianReader(cfg)
 
 
@@ -47,42 +40,6 @@ def list_batches(cfg: Config, unit: str | None = None, recipe: str | None = None
     finally:
         reader.close()
     return batches, counts, problems
-
-
-def recipe_model(cfg: Config, recipe: str, kinetics: Kinetics | None = None) -> RecipeModel:
-    rc = cfg.recipe(recipe)
-    if rc is None:
-        raise ConfigError(
-            f"recipe {recipe!r} has no [recipes.{recipe}] table (kinetics, target)",
-            path=cfg.path,
-            key=f"recipes.{recipe}",
-        )
-    return RecipeModel.from_config(rc, kinetics or load_kinetics(rc.kinetics))
-
-
-def build_state(cfg: Config, data: BatchData, model: RecipeModel) -> BatchState:
-    """A batch state from what the reader delivered (charge tag, else recipe default)."""
-    b = data.batch
-    c_a0, from_tag = data.charge, True
-    if c_a0 is None or not c_a0 > 0:
-        c_a0, from_tag = model.initial_concentration, False
-    if c_a0 is None:
-        raise DataQualityError(
-            f"batch {b.batch}: no charge sample and no recipes.{b.recipe}.initial_concentration"
-        )
-    state = BatchState(
-        b.batch,
-        b.unit,
-        model,
-        b.start_s,
-        float(c_a0),
-        end_s=b.end_s,
-        charge_from_tag=from_tag,
-        max_gap_s=cfg.estimator.max_gap_s,
-    )
-    state.add_temperature(data.temperature.t_s, data.temperature.value)
-    state.add_assays(data.assays.t_s, data.assays.value)
-    return state
 
 
 def estimate_batch(
@@ -123,9 +80,14 @@ def estimate_batch(
     est = estimate(state, at, cfg.estimator, safety=rc.safety)
     summary = data.quality.as_rows()
     if summary:
-        est.warnings.append(
-            "excluded samples: "
-            + ", ".join(f"{r['tag']} {r['reason']} ×{r['count']}" for r in summary)
+        est.findings.append(
+            Finding(
+                Kind.EXCLUDED_SAMPLES,
+                Severity.INFO,
+                "excluded samples: "
+                + ", ".join(f"{r['tag']} {r['reason']} ×{r['count']}" for r in summary),
+                {"excluded": summary},
+            )
         )
     return est, b
 
@@ -133,3 +95,62 @@ def estimate_batch(
 def _unit_tag(cfg: Config, unit: str) -> str:
     u = cfg.unit(unit)
     return u.temperature_tag if u else f"unit {unit} (not configured)"
+
+
+def status(cfg: Config) -> dict:
+    """The ``status`` document: the newest estimate of each running batch, its open
+    alerts, and the monitor's heartbeat."""
+    store = Store(cfg.store.url)
+    try:
+        rows = store.latest_estimates()
+        open_alerts = store.open_alerts()
+        beat = store.heartbeat()
+    finally:
+        store.close()
+    kinds: dict = {}
+    for a in open_alerts:
+        kinds.setdefault(a["batch"], []).append(a["kind"])
+    for r in rows:
+        r["alerts"] = kinds.get(r["batch"], [])
+    return {
+        "status": rows,
+        "heartbeat": {
+            "last_good_cycle": timefmt.iso(beat["last_good_cycle_s"]) if beat else None,
+            "last_data": timefmt.iso(beat["last_data_s"]) if beat else None,
+            "cycles": beat["cycles"] if beat else 0,
+            "failed_cycles": beat["failed_cycles"] if beat else 0,
+        },
+    }
+
+
+def alert_json(a: dict) -> dict:
+    """An alert row as the ``alerts`` document shows it."""
+    return {
+        "id": a["id"],
+        "batch": a["batch"],
+        "kind": a["kind"],
+        "severity": a["severity"],
+        "state": a["state"],
+        "raised_at": timefmt.iso(a["raised_at_s"]),
+        "cleared_at": timefmt.iso(a["cleared_at_s"]),
+        "acked_by": a["acked_by"],
+        "message": a["message"],
+    }
+
+
+def list_alerts(cfg: Config, *, open_only: bool = False) -> dict:
+    """The ``alerts`` document (``open_only``: those whose condition still holds)."""
+    store = Store(cfg.store.url)
+    try:
+        return {"alerts": [alert_json(a) for a in store.list_alerts(open_only=open_only)]}
+    finally:
+        store.close()
+
+
+def ack_alert(cfg: Config, alert_id: int, by: str) -> dict:
+    """Acknowledge an alert: who saw it is recorded; returns the alert."""
+    store = Store(cfg.store.url)
+    try:
+        return alert_json(store.ack_alert(alert_id, by))
+    finally:
+        store.close()

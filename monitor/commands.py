@@ -7,7 +7,9 @@ from datetime import datetime
 
 from . import api
 from .config import load_config
-from .outputs import formats
+from .outputs import documents as formats
+from .outputs import terminal
+from .timefmt import local
 
 
 def _out(args, doc, text: str) -> None:
@@ -28,7 +30,7 @@ def cmd_batches(args) -> int:
         return 0
     from rich.table import Table
 
-    from .outputs.board import console
+    from .outputs.terminal import console
 
     table = Table(title=f"{len(docs)} batches")
     zone = cfg.site.timezone
@@ -39,8 +41,8 @@ def cmd_batches(args) -> int:
             d["batch"],
             d["unit"],
             d["recipe"],
-            formats.local(b.start_s, zone),
-            formats.local(b.end_s, zone),
+            local(b.start_s, zone),
+            local(b.end_s, zone),
             d["state"],
             str(d["n_temperature"]),
             str(d["n_assays"]),
@@ -54,54 +56,36 @@ def cmd_estimate(args) -> int:
     cfg = load_config(args.config)
     at = api.parse_time(args.at, cfg.site.timezone) if args.at else None
     est, _ = api.estimate_batch(cfg, args.batch, at)
-    _out(args, formats.estimate_json(est), formats.estimate_text(est, cfg.site.timezone))
+    _out(args, formats.estimate_json(est), terminal.estimate_text(est, cfg.site.timezone))
     return 0
 
 
 def cmd_run(args) -> int:
-    from .service import run_service
+    from .service.scheduler import run_once, run_service
 
     cfg = load_config(args.config)
-    return run_service(cfg, once=args.once)
-
-
-def status_doc(cfg) -> dict:
-    from .store.db import Store
-
-    store = Store(cfg.store.url)
-    try:
-        rows = store.latest_estimates()
-        open_alerts = store.open_alerts()
-        beat = store.heartbeat()
-    finally:
-        store.close()
-    kinds: dict = {}
-    for a in open_alerts:
-        kinds.setdefault(a["batch"], []).append(a["kind"])
-    for r in rows:
-        r["alerts"] = kinds.get(r["batch"], [])
-    return {
-        "status": rows,
-        "heartbeat": {
-            "last_good_cycle": formats.iso(beat["last_good_cycle_s"]) if beat else None,
-            "last_data": formats.iso(beat["last_data_s"]) if beat else None,
-            "cycles": beat["cycles"] if beat else 0,
-            "failed_cycles": beat["failed_cycles"] if beat else 0,
-        },
-    }
+    if args.once:
+        rep = run_once(cfg)
+        print(
+            f"cycle done: {rep.rows_read} rows read, {rep.running} running batches, "
+            f"{rep.estimates_added} estimates and {rep.alerts_added} alerts added"
+        )
+    else:
+        run_service(cfg)
+    return 0
 
 
 def cmd_status(args) -> int:
-    from .outputs.board import status_table
+    from .outputs.terminal import status_table
 
     cfg = load_config(args.config)
-    doc = status_doc(cfg)
+    doc = api.status(cfg)
     if args.json:
         print(formats.dumps(doc))
         return 0
     import time as _time
 
-    from .outputs.board import console
+    from .outputs.terminal import console
 
     console().print(status_table(doc, cfg.site.timezone, now_s=_time.time()))
     return 0
@@ -109,7 +93,7 @@ def cmd_status(args) -> int:
 
 def _plain_lines(doc: dict, zone: str, now_s: float) -> list[str]:
     beat = doc.get("heartbeat") or {}
-    lines = [f"{formats.local(now_s, zone)} last good cycle {beat.get('last_good_cycle')}"]
+    lines = [f"{local(now_s, zone)} last good cycle {beat.get('last_good_cycle')}"]
     for r in doc["status"]:
         age = (now_s - datetime.fromisoformat(r["at"]).timestamp()) / 60
         lines.append(
@@ -125,7 +109,7 @@ def cmd_watch(args) -> int:
     """Refresh the status view; plain lines when stdout is not a terminal."""
     import time as _time
 
-    from .outputs.board import status_table
+    from .outputs.terminal import status_table
 
     cfg = load_config(args.config)
     zone = cfg.site.timezone
@@ -134,17 +118,17 @@ def cmd_watch(args) -> int:
         while args.count is None or n < args.count:
             if n:
                 _time.sleep(args.interval)
-            print("\n".join(_plain_lines(status_doc(cfg), zone, _time.time())), flush=True)
+            print("\n".join(_plain_lines(api.status(cfg), zone, _time.time())), flush=True)
             n += 1
         return 0
     from rich.live import Live
 
     with Live(
-        status_table(status_doc(cfg), zone, now_s=_time.time()), refresh_per_second=2
+        status_table(api.status(cfg), zone, now_s=_time.time()), refresh_per_second=2
     ) as live:
         while args.count is None or n < args.count:
             _time.sleep(args.interval)
-            live.update(status_table(status_doc(cfg), zone, now_s=_time.time()))
+            live.update(status_table(api.status(cfg), zone, now_s=_time.time()))
             n += 1
     return 0
 
@@ -249,9 +233,9 @@ def cmd_fit(args) -> int:
     import contextlib
     from pathlib import Path
 
-    from . import fitjob
+    from .config import load_kinetics
     from .errors import ConfigError
-    from .kinetics import load_kinetics
+    from .fitting import job as fitjob
 
     progress = _FitProgress() if sys.stderr.isatty() else None
     with progress or contextlib.nullcontext():
@@ -296,44 +280,23 @@ def cmd_fit(args) -> int:
     return 0
 
 
-def _alert_json(a: dict) -> dict:
-    return {
-        "id": a["id"],
-        "batch": a["batch"],
-        "kind": a["kind"],
-        "severity": a["severity"],
-        "state": a["state"],
-        "raised_at": formats.iso(a["raised_at_s"]),
-        "cleared_at": formats.iso(a["cleared_at_s"]),
-        "acked_by": a["acked_by"],
-        "message": a["message"],
-    }
-
-
 def cmd_alerts(args) -> int:
     from .errors import UsageError
-    from .store.db import Store
 
     cfg = load_config(args.config)
-    store = Store(cfg.store.url)
-    try:
-        if args.action == "ack":
-            if args.alert_id is None or not args.by:
-                raise UsageError("usage: convmon alerts ack ID --by NAME")
-            a = _alert_json(store.ack_alert(args.alert_id, args.by))
-            _out(
-                args,
-                a,
-                f"alert {a['id']} ({a['kind']}, {a['batch']}) acknowledged by {a['acked_by']}",
-            )
-            return 0
-        docs = [_alert_json(a) for a in store.list_alerts(open_only=args.open)]
-    finally:
-        store.close()
+    if args.action == "ack":
+        if args.alert_id is None or not args.by:
+            raise UsageError("usage: convmon alerts ack ID --by NAME")
+        a = api.ack_alert(cfg, args.alert_id, args.by)
+        _out(
+            args, a, f"alert {a['id']} ({a['kind']}, {a['batch']}) acknowledged by {a['acked_by']}"
+        )
+        return 0
+    doc = api.list_alerts(cfg, open_only=args.open)
     lines = [
         f"{d['id']:>5} {d['state']:<8} {d['severity']:<8} {d['batch']:<12} {d['kind']:<20} "
         f"{d['raised_at']}  {d['message']}"
-        for d in docs
+        for d in doc["alerts"]
     ] or ["no alerts"]
-    _out(args, {"alerts": docs}, "\n".join(lines))
+    _out(args, doc, "\n".join(lines))
     return 0

@@ -14,12 +14,23 @@ Advisory only: convmon is not a control or safety system.
 from __future__ import annotations
 
 import shutil
-import sqlite3
 import time
+from datetime import datetime
 from pathlib import Path
 
+from rich.live import Live
+
+from sample_historian.generate import generate
+from sample_historian.replay import Replay, export_end
+
+from . import api
 from .config import config_from_dict
-from .historian.model import to_datetime
+from .fitting.job import fit_recipe
+from .historian.reader import HistorianReader
+from .outputs.terminal import console as board_console
+from .outputs.terminal import status_table
+from .service.cycle import Monitor
+from .timefmt import to_datetime
 
 REPO = Path(__file__).resolve().parent.parent
 SAMPLE_DB = REPO / "sample_historian" / "plant.db"
@@ -37,73 +48,8 @@ def _config(out: Path, live_db: Path, kinetics: dict[str, Path]):
     return config_from_dict(data, SAMPLE_CONFIG.resolve())
 
 
-def _copy_schema(src: sqlite3.Connection, dst: sqlite3.Connection) -> None:
-    for (sql,) in src.execute(
-        "SELECT sql FROM sqlite_master WHERE sql IS NOT NULL AND type IN ('table', 'index')"
-    ):
-        dst.execute(sql)
-    dst.commit()
-
-
-class Replay:
-    """Feeds the export into a live file in arrival order, up to a plant time."""
-
-    def __init__(self, src_path: Path, live_path: Path, temperature_tags: list[str]):
-        if live_path.exists():
-            live_path.unlink()
-        self.src = sqlite3.connect(f"file:{src_path}?mode=ro", uri=True)
-        self.dst = sqlite3.connect(live_path)
-        _copy_schema(self.src, self.dst)
-        self.tags = temperature_tags
-        self.seq = -1
-        self.event_seq = -1
-
-    def _cut(self, clock_iso: str) -> int:
-        """The last seq that has arrived by ``clock_iso``: that of the newest temperature row."""
-        cut = -1
-        for tag in self.tags:
-            row = self.src.execute(
-                "SELECT MAX(seq) FROM tag_samples WHERE tag = ? AND ts <= ?", (tag, clock_iso)
-            ).fetchone()
-            if row[0] is not None:
-                cut = max(cut, row[0])
-        return cut
-
-    def advance_to(self, clock_s: float) -> int:
-        iso = to_datetime(clock_s).isoformat(timespec="milliseconds")
-        cut = self._cut(iso)
-        rows = self.src.execute(
-            "SELECT seq, tag, ts, value, quality FROM tag_samples WHERE "
-            "seq > ? AND seq <= ? ORDER BY seq",
-            (self.seq, cut),
-        ).fetchall()
-        self.dst.executemany("INSERT INTO tag_samples VALUES (?, ?, ?, ?, ?)", rows)
-        ev = self.src.execute(
-            "SELECT seq, batch_id, unit, recipe, event, ts FROM batch_events "
-            "WHERE seq > ? AND ts <= ? ORDER BY seq",
-            (self.event_seq, iso),
-        ).fetchall()
-        self.dst.executemany("INSERT INTO batch_events VALUES (?, ?, ?, ?, ?, ?)", ev)
-        self.dst.commit()
-        self.seq = max(self.seq, cut)
-        if ev:
-            self.event_seq = max(e[0] for e in ev)
-        return len(rows)
-
-    def close(self):
-        self.src.close()
-        self.dst.close()
-
-
 def _fit_kinetics(out: Path, cfg_hist, before_s: float, log) -> dict[str, Path]:
     """Fit each recipe on batches completed before the replay; {} if the fit is unavailable."""
-    try:
-        from . import fitjob
-    except ImportError:
-        log("  kinetics fit not available; using config/kinetics files")
-        return {}
-    from .historian.reader import HistorianReader
-
     reader = HistorianReader(cfg_hist)
     found = {}
     try:
@@ -119,7 +65,7 @@ def _fit_kinetics(out: Path, cfg_hist, before_s: float, log) -> dict[str, Path]:
         path = out / "kinetics" / f"{recipe.lower()}.toml"
         t0 = time.perf_counter()
         try:
-            res = fitjob.fit_recipe(cfg_hist, recipe, path, batches=ids, force=True)
+            res = fit_recipe(cfg_hist, recipe, path, batches=ids, force=True)
         except Exception as exc:  # the demo goes on with the shipped kinetics
             log(f"  fit of {recipe} failed ({exc}); using config/kinetics")
             continue
@@ -136,13 +82,6 @@ def _fit_kinetics(out: Path, cfg_hist, before_s: float, log) -> dict[str, Path]:
 
 def run_demo(out_dir: str | Path = "var/demo", *, fast: bool = False, stream=None) -> dict:
     """Run the demo; returns the summary it prints."""
-    from rich.live import Live
-
-    from .commands import status_doc
-    from .outputs.board import console as board_console
-    from .outputs.board import status_table
-    from .service import Monitor
-
     console = board_console(stream)
     log = console.print
     out = Path(out_dir).resolve()
@@ -152,13 +91,11 @@ def run_demo(out_dir: str | Path = "var/demo", *, fast: bool = False, stream=Non
         "safety system)"
     )
     if not SAMPLE_DB.exists():
-        from sample_historian.generate import generate
-
         log("generating the sample plant export ...")
         generate(SAMPLE_DB)
-    export_end = _export_end(SAMPLE_DB)
+    end_s = export_end(SAMPLE_DB)
     span_h = 8.0 if fast else 54.0  # the last 54 h: three batches start to end, two running
-    replay_start = export_end - span_h * 3600
+    replay_start = end_s - span_h * 3600
     for f in ("convmon.db", "live.db"):
         (out / f).unlink(missing_ok=True)
     hist_cfg = _config(out, SAMPLE_DB, {})
@@ -183,7 +120,7 @@ def run_demo(out_dir: str | Path = "var/demo", *, fast: bool = False, stream=Non
             clock["t"] = replay_start + i * step_s
             replay.advance_to(clock["t"])
             rep = monitor.run_cycle_safely()
-            doc = status_doc(cfg)
+            doc = api.status(cfg)
             for r in doc["status"]:
                 history.setdefault(r["batch"], []).append(
                     (r["at"], r["predicted_end"], r["predicted_end_p10"], r["predicted_end_p90"])
@@ -209,22 +146,7 @@ def run_demo(out_dir: str | Path = "var/demo", *, fast: bool = False, stream=Non
     return summary
 
 
-def _export_end(db: Path) -> float:
-    """Time of the newest sample in the export [s]."""
-    from .historian.timestamps import to_epoch_seconds
-
-    con = sqlite3.connect(f"file:{db}?mode=ro", uri=True)
-    try:
-        (last,) = con.execute("SELECT MAX(ts) FROM tag_samples").fetchone()
-    finally:
-        con.close()
-    t, _ = to_epoch_seconds([last], "UTC")
-    return float(t[0])
-
-
 def _summary(monitor, history, out, kinetics, wall) -> dict:
-    from datetime import datetime
-
     snap = monitor.store.snapshot()
     lines = []
     for bid, pts in history.items():

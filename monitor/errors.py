@@ -1,7 +1,8 @@
 """One error hierarchy; each error carries the facts a user needs to act.
 
-The CLI maps each class to an exit code (see ``EXIT_CODES``) and prints the
-message on one line, never a traceback for a user's mistake.
+Each class has its exit code; `EXIT_CODES` is the one table of them that the CLI
+and the documentation use. The CLI prints the message on one line, never a
+traceback for a user's mistake.
 """
 
 from __future__ import annotations
@@ -55,8 +56,16 @@ class DataQualityError(MonitorError):
     exit_code = 3
 
 
-class BatchNotFoundError(UsageError):
+class NotFoundError(ConfigError):
+    """Something the user named does not exist (a batch, an alert)."""
+
+
+class BatchNotFoundError(NotFoundError):
     """A batch id the export does not have."""
+
+
+class AlertNotFoundError(NotFoundError):
+    """An alert id the store does not have."""
 
 
 class IntegrityError(MonitorError):
@@ -73,3 +82,17 @@ class LockError(MonitorError):
     """Another monitor already runs on the same store."""
 
     exit_code = 3
+
+
+#: Exit codes of the command line, and what each means (README and --help show this).
+EXIT_CODES: dict[int, str] = {
+    0: "success",
+    2: "bad usage or configuration",
+    3: "historian or store unreachable or unreadable",
+    4: "an integrity check failed",
+}
+
+
+def exit_code_summary() -> str:
+    """One line for help texts: "0 success, 2 bad usage or configuration, ..."."""
+    return ", ".join(f"{code} {what}" for code, what in EXIT_CODES.items())

@@ -7,7 +7,7 @@ import sys
 
 from sqlalchemy import select
 
-from monitor.store.db import Store, kinetics_versions
+from monitor.store import Store, kinetics_versions
 
 
 def test_demo_runs_the_whole_job(tmp_path):

@@ -15,11 +15,13 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy.integrate import solve_ivp, trapezoid
 
-from monitor.batch.estimator import EstimatorSettings, estimate, posterior_for
+from monitor.batch.estimator import estimate, posterior_for
+from monitor.batch.findings import Kind, of_kind
+from monitor.batch.kinetics import Kinetics
 from monitor.batch.posterior import log_prior
+from monitor.batch.settings import EstimatorSettings
 from monitor.batch.state import BatchState, RecipeModel, prior_sd
-from monitor.kinetics import Kinetics
-from monitor.physics.trace import reference_time
+from monitor.physics.quadrature import reference_time
 
 R = 8.314462618  # J/(mol K), CODATA 2018 (exact)
 K_REF, T_REF, EA, SD_EA = 4e-4, 343.15, 65e3, 2000.0  # L/(mol s), K, J/mol, J/mol
@@ -139,8 +141,9 @@ def test_outlier_assay_is_a_mismatch_finding_and_is_not_used():
     ref = estimate(without, AT_S)
     assert est.n_assays_used == 2
     assert est.mismatched_assays == [7200.0]
-    assert [w for w in est.warnings if w.startswith("assay-mismatch")] == [est.warnings[0]]
-    assert "1970-01-01T02:00:00" in est.warnings[0]  # names the sample time
+    (mismatch,) = of_kind(est.findings, Kind.ASSAY_MISMATCH)
+    assert mismatch.data["sample_s"] == 7200.0 and mismatch.data["z"] > 4.0
+    assert "1970-01-01T02:00:00" in mismatch.message  # names the sample time
     # not used: the answer is that of the batch without it
     assert_allclose(est.conversion, ref.conversion, rtol=1e-12)
     assert_allclose(est.predicted_end_s, ref.predicted_end_s, rtol=1e-12)
@@ -150,7 +153,7 @@ def test_no_assays_gives_a_warning_and_the_prior():
     state = make_state()
     est = estimate(state, AT_S)
     assert est.n_assays_used == 0
-    assert any(w.startswith("no assays yet") for w in est.warnings)
+    assert of_kind(est.findings, Kind.NO_ASSAYS)
     # the activity is the prior's: the mean of alpha = exp(phi) under the prior density
     # of phi (monitor.batch.posterior.log_prior, on the support the estimator uses),
     # integrated here by the trapezoidal rule on a fine grid
@@ -268,9 +271,9 @@ def test_a_gap_longer_than_max_gap_warns_and_widens_the_uncertainty():
         s.add_assays(ASSAY_T, y)
     settings = EstimatorSettings(max_gap_s=300.0)
     a, b = estimate(full, AT_S, settings), estimate(gappy, AT_S, settings)
-    assert not any("gap" in w for w in a.warnings)
-    gap_warnings = [w for w in b.warnings if w.startswith("temperature gap")]
-    assert len(gap_warnings) == 1 and "1 gap(s)" in gap_warnings[0]
+    assert not of_kind(a.findings, Kind.TEMPERATURE_GAP)
+    gap_findings = of_kind(b.findings, Kind.TEMPERATURE_GAP)
+    assert len(gap_findings) == 1 and gap_findings[0].data["gaps"] == 1
     assert b.conversion_sd > a.conversion_sd * 1.05
     # the same samples with a longer allowed gap: no warning and no widening
     relaxed = BatchState("B1", "R1", RECIPE, 0.0, C_A0, max_gap_s=3600.0)
@@ -278,13 +281,13 @@ def test_a_gap_longer_than_max_gap_warns_and_widens_the_uncertainty():
     relaxed.add_temperature(t, plan_T(t))
     relaxed.add_assays(ASSAY_T, y)
     c = estimate(relaxed, AT_S, EstimatorSettings(max_gap_s=3600.0))
-    assert not any("gap" in w for w in c.warnings)
+    assert not of_kind(c.findings, Kind.TEMPERATURE_GAP)
     assert_allclose(c.conversion_sd, a.conversion_sd, rtol=0.02)
 
 
 def test_stale_temperature_is_a_warning():
     est = estimate(make_state(until=AT_S - 1200.0), AT_S)
-    assert any(w.startswith("temperature stale") for w in est.warnings)
+    assert of_kind(est.findings, Kind.TEMPERATURE_STALE)
 
 
 def test_no_temperature_before_the_estimate_time_is_an_error():

@@ -19,11 +19,11 @@ import numpy as np
 import pytest
 import tomli_w
 
-from monitor import __version__, fitjob
+from monitor import __version__
 from monitor.cli import main
-from monitor.config import load_config
+from monitor.config import load_config, load_kinetics
 from monitor.errors import KineticsError, UsageError
-from monitor.kinetics import load_kinetics
+from monitor.fitting import job as fitjob
 
 REPO = Path(__file__).resolve().parents[1]
 LAB_EXAMPLE = REPO / "config" / "lab" / "dim7_lab_runs.csv"

@@ -15,7 +15,8 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy.integrate import solve_ivp
 
-from monitor.physics.fitting import (
+from monitor.physics.lab_methods import fit_arrhenius, fit_differential, fit_integral
+from monitor.physics.plant_fit.fit import (
     FitSeries,
     _Model,
     _Problem,
@@ -23,8 +24,7 @@ from monitor.physics.fitting import (
     excluded_mask,
     fit_batches,
 )
-from monitor.physics.lab_kinetics import fit_arrhenius, fit_differential, fit_integral
-from monitor.physics.trace import segment_integrals
+from monitor.physics.quadrature import segment_integrals
 
 R = 8.314462618  # CODATA 2018 [J/(mol K)]
 

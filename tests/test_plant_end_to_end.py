@@ -11,7 +11,7 @@ import pytest
 
 from monitor.api import estimate_batch
 from monitor.config import load_config
-from monitor.service import Monitor
+from monitor.service.cycle import Monitor
 
 
 def convmon(*args):
@@ -96,7 +96,7 @@ def test_run_once_twice_adds_nothing_the_second_time(sample_plant, tmp_path):
 
 def test_second_run_on_same_store_refuses(sample_plant, tmp_path, monkeypatch):
     from monitor.errors import LockError
-    from monitor.service import StoreLock
+    from monitor.service.lock import StoreLock
 
     monkeypatch.setenv("CONVMON_LOCK_DIR", str(tmp_path))
     cfg = load_config(sample_plant.config_path)

@@ -9,9 +9,9 @@ import pytest
 from numpy.testing import assert_allclose
 
 from monitor.batch.estimator import estimate
+from monitor.batch.kinetics import Kinetics
 from monitor.batch.state import BatchState, RecipeModel
 from monitor.config import SafetyConfig
-from monitor.kinetics import Kinetics
 from monitor.physics.safety import (
     adiabatic_temperature_rise,
     criticality_class,

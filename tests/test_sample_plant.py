@@ -553,8 +553,7 @@ def test_activity_drifts_down_over_the_last_batches_of_one_recipe(sample_plant):
 
 # ------------------------------------------------------------------------ configuration
 def test_plant_configuration_loads_and_names_what_the_export_has(plant):
-    from monitor.config import load_config
-    from monitor.kinetics import load_kinetics
+    from monitor.config import load_config, load_kinetics
 
     sp, samples, events = plant
     cfg = load_config(sp.config_path)

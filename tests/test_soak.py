@@ -14,8 +14,8 @@ import psutil
 import pytest
 
 from monitor.config import load_config
-from monitor.demo import Replay
-from monitor.service import Monitor
+from monitor.service.cycle import Monitor
+from sample_historian.replay import Replay
 from tests.reliability.harness import iso_to_s, write_config
 
 

@@ -7,8 +7,8 @@ import math
 import pytest
 
 from monitor.config import load_config
-from monitor.service import Monitor
-from monitor.store.db import MIGRATIONS, Store, applied_migrations
+from monitor.service.cycle import Monitor
+from monitor.store import MIGRATIONS, Store, applied_migrations
 
 
 def _cfg(plant, tmp_path, store_url):

@@ -13,24 +13,18 @@ from numpy.testing import assert_allclose
 from scipy.integrate import solve_ivp
 from scipy.special import expn
 
+from monitor.batch.kinetics import Kinetics
 from monitor.batch.state import BatchState, RecipeModel
-from monitor.kinetics import Kinetics
 from monitor.physics.arrhenius import (
     R_J_PER_MOL_K,
     arrhenius_factor,
     equilibrium_constant,
     rate_constant,
 )
+from monitor.physics.quadrature import reference_time, segment_integrals
 from monitor.physics.rate_laws import BimolecularLaw, PowerLaw, ReversibleLaw
-from monitor.physics.trace import (
-    ThetaTrace,
-    plan_temperature,
-    reference_time,
-    refine_trace,
-    reversible_segments,
-    segment_integrals,
-    step_reversible,
-)
+from monitor.physics.reversible import refine_trace, reversible_segments, step_reversible
+from monitor.physics.theta import ThetaTrace, plan_temperature
 
 EA = 65e3  # J/mol
 T_REF = 343.15  # K

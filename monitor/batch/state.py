@@ -9,15 +9,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..kinetics import Kinetics
 from ..physics.arrhenius import R_J_PER_MOL_K, arrhenius_factor, equilibrium_constant
-from ..physics.trace import (
-    ThetaTrace,
-    refine_trace,
-    reversible_segments,
-    segment_integrals,
-    step_reversible,
-)
+from ..physics.reversible import refine_trace, reversible_segments, step_reversible
+from ..physics.theta import ThetaTrace
+from .kinetics import Kinetics
 
 
 @dataclass(frozen=True)
@@ -222,6 +217,3 @@ class BatchState:
 def prior_sd(kin: Kinetics) -> float:
     """Prior sd of ``ln alpha``: batch-to-batch spread plus the ``ln k_ref`` uncertainty."""
     return float(np.hypot(max(kin.activity_sd, 1e-3), kin.stderr_k_ref / kin.k_ref))
-
-
-__all__ = ["BatchState", "RecipeModel", "prior_sd", "segment_integrals"]

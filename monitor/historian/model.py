@@ -9,21 +9,11 @@ from __future__ import annotations
 
 from collections import Counter
 from dataclasses import dataclass, field
-from datetime import UTC, datetime
+from datetime import datetime
 
 import numpy as np
 
-
-def to_datetime(t_s: float) -> datetime:
-    """Epoch seconds [s] to an aware UTC datetime."""
-    return datetime.fromtimestamp(t_s, tz=UTC)
-
-
-def to_epoch(dt: datetime) -> float:
-    """Aware datetime to epoch seconds [s]."""
-    if dt.tzinfo is None:
-        raise ValueError("naive datetime: give a time zone")
-    return dt.timestamp()
+from ..timefmt import to_datetime
 
 
 @dataclass(frozen=True)

@@ -26,7 +26,7 @@ from sqlalchemy.exc import SQLAlchemyError
 
 from ..config import WritebackConfig
 from ..errors import SchemaError, StoreError
-from .formats import iso
+from ..timefmt import iso
 
 BAD_NO_DATA = 0x809B0000  # OPC UA StatusCode Bad_NoData (OPC 10000-4 status codes; from memory)
 FIELDS = {

@@ -43,11 +43,10 @@ from pathlib import Path
 
 import numpy as np
 
-from monitor.config import EstimatorConfig, config_from_dict
-from monitor.kinetics import load_kinetics
+from monitor.config import EstimatorConfig, config_from_dict, load_kinetics
+from monitor.physics.quadrature import reference_time
 from monitor.physics.rate_laws import power_G_inv
-from monitor.physics.trace import reference_time
-from monitor.service import Monitor
+from monitor.service.cycle import Monitor
 
 REPO = Path(__file__).resolve().parents[2]
 KINETICS = REPO / "config" / "kinetics" / "dim7.toml"

@@ -25,9 +25,10 @@ import time
 import numpy as np
 from scipy.integrate import solve_ivp
 
-from monitor.batch.estimator import EstimatorSettings, estimate
+from monitor.batch.estimator import estimate
+from monitor.batch.kinetics import Kinetics
+from monitor.batch.settings import EstimatorSettings
 from monitor.batch.state import BatchState, RecipeModel
-from monitor.kinetics import Kinetics
 
 R = 8.314462618
 KIN = Kinetics(

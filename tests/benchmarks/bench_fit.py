@@ -25,7 +25,7 @@ import time
 import numpy as np
 from scipy.integrate import solve_ivp
 
-from monitor.physics.fitting import FitSeries, fit_batches
+from monitor.physics.plant_fit.fit import FitSeries, fit_batches
 
 R = 8.314462618
 EA, K_REF, T_REF, ORDER = 70e3, 5e-4, 343.15, 2.0
@@ -105,7 +105,7 @@ def main() -> dict:
     wall = time.perf_counter() - t0
 
     # per-evaluation cost of the Θ model at the solution (residuals + analytic Jacobian)
-    from monitor.physics.fitting import _Model, _Problem, _Spec
+    from monitor.physics.plant_fit.fit import _Model, _Problem, _Spec
 
     prob = _Problem(series, [])
     spec = _Spec("power", {}, ["order"], True, True, fit.t_ref_k)

@@ -11,8 +11,8 @@ import time
 from datetime import datetime
 from pathlib import Path
 
-from monitor.demo import Replay
-from monitor.store.db import Store
+from monitor.store import Store
+from sample_historian.replay import Replay
 from tests import fixtures_plant
 
 REPO = Path(__file__).resolve().parents[2]

@@ -5,7 +5,7 @@ from __future__ import annotations
 import sys
 
 from monitor.config import load_config
-from monitor.service import Monitor
+from monitor.service.cycle import Monitor
 
 
 def main() -> int:

@@ -1,4 +1,4 @@
-"""The live monitor: the poll cycle and its scheduler.
+"""The live monitor's poll cycle.
 
 One cycle: read new rows -> update each running batch incrementally ->
 evaluate alerts -> commit results and watermark in one transaction ->
@@ -9,22 +9,21 @@ replay control time.
 
 from __future__ import annotations
 
-import json
 import logging
-import os
-import signal
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
-from pathlib import Path
 
-from .api import build_state, recipe_model
-from .batch.estimator import estimate
-from .config import Config
-from .errors import ConfigError, LockError, MonitorError
-from .historian.model import Batch
-from .outputs.formats import estimate_json
-from .store.db import Store
+from ..batch import alert_rules
+from ..batch.estimator import estimate
+from ..config import Config
+from ..errors import MonitorError
+from ..historian.model import Batch
+from ..historian.reader import HistorianReader
+from ..outputs.documents import estimate_record
+from ..outputs.writeback import WriteBack
+from ..store import Store
+from .registry import build_state, recipe_model
 
 log = logging.getLogger(__name__)
 
@@ -51,16 +50,12 @@ class Monitor:
         store: Store | None = None,
         writer=None,
     ):
-        from .historian.reader import HistorianReader
-
         self.cfg = cfg
         self.clock = clock
         self.reader = reader or HistorianReader(cfg)
         self.store = store or Store(cfg.store.url)
         self.writer = writer
         if writer is None and cfg.writeback.enabled:
-            from .outputs.writeback import WriteBack
-
             self.writer = WriteBack(cfg.writeback)
         self._wb_backlog: list = []
         self._last_estimate: dict = {}
@@ -162,8 +157,7 @@ class Monitor:
                 rc = self.cfg.recipe(b.recipe)
                 est = estimate(st, at, self.settings, safety=rc.safety)
                 self._last_estimate[b.batch] = (key, est)
-                doc = estimate_json(est)
-                est_rows.append(_estimate_row(est, doc))
+                est_rows.append(estimate_record(est))
                 wb_items.append((b.unit, est_rows[-1]))
                 kin_rows.append(
                     {
@@ -214,43 +208,23 @@ class Monitor:
 
     def _alerts(self, b: Batch, est, now: float) -> list[dict]:
         """Raise or clear the alert kinds the estimate shows (advisory)."""
-        conditions = {
-            "assay_mismatch": (
-                "warning",
-                bool(est.mismatched_assays),
-                "; ".join(w for w in est.warnings if w.startswith("assay-mismatch")),
-            ),
-            "target_unreachable": ("warning", est.predicted_end_s is None, est.forecast_note),
-            "stale_data": (
-                "warning",
-                b.end_s is None and now - est.at_s > self._stale_after_s,
-                f"no new temperature sample for {(now - est.at_s) / 60:.0f} min",
-            ),
+        conditions = alert_rules.evaluate(
+            est, running=b.end_s is None, now_s=now, stale_after_s=self._stale_after_s
+        )
+        open_ids = {
+            kind: row.get("id")
+            for (batch, kind), row in self._open_alerts.items()
+            if batch == b.batch
         }
-        out = []
-        for kind, (severity, active, message) in conditions.items():
-            key = (b.batch, kind)
-            if active and key not in self._open_alerts:
-                row = {
-                    "op": "raise",
-                    "batch": b.batch,
-                    "kind": kind,
-                    "severity": severity,
-                    "state": "open",
-                    "raised_at_s": est.at_s,
-                    "message": message,
+        changes = alert_rules.alert_changes(b.batch, conditions, open_ids, est.at_s)
+        for c in changes:
+            if c["op"] == "raise":
+                self._open_alerts[(b.batch, c["kind"])] = c
+            else:
+                self._open_alerts = {
+                    k: v for k, v in self._open_alerts.items() if v.get("id") != c["id"]
                 }
-                self._open_alerts[key] = row
-                out.append(row)
-            elif not active and key in self._open_alerts and "id" in self._open_alerts[key]:
-                out.append(
-                    {
-                        "op": "clear",
-                        "id": self._open_alerts.pop(key)["id"],
-                        "cleared_at_s": est.at_s,
-                    }
-                )
-        return out
+        return changes
 
     def refresh_alert_ids(self) -> None:
         self._open_alerts = {(a["batch"], a["kind"]): a for a in self.store.open_alerts()}
@@ -279,121 +253,3 @@ class Monitor:
         self._store_running = set(self.store.running_batches())
         self.refresh_alert_ids()
         return None
-
-
-def _estimate_row(est, doc) -> dict:
-    return {
-        "batch": est.batch,
-        "at_s": est.at_s,
-        "conversion": est.conversion,
-        "conversion_sd": est.conversion_sd,
-        "activity": est.activity,
-        "activity_sd": est.activity_sd,
-        "target_conversion": est.target_conversion,
-        "predicted_end_s": est.predicted_end_s,
-        "p10_s": est.predicted_end_p10_s,
-        "p90_s": est.predicted_end_p90_s,
-        "forecast_note": est.forecast_note,
-        "n_assays_used": est.n_assays_used,
-        "warnings": json.dumps(est.warnings),
-        "kinetics_version": est.kinetics_version,
-        "doc": json.dumps(doc, default=str),
-    }
-
-
-class StoreLock:
-    """One monitor per store: an exclusive lock file beside (or named after) the store."""
-
-    def __init__(self, cfg: Config):
-        import hashlib
-
-        digest = hashlib.sha256(cfg.store.url.encode()).hexdigest()[:16]
-        base = Path(os.environ.get("CONVMON_LOCK_DIR", cfg.base_dir / "var"))
-        self.path = base / f"convmon-{digest}.lock"
-        self._fh = None
-
-    def __enter__(self):
-        import fcntl
-
-        self.path.parent.mkdir(parents=True, exist_ok=True)
-        self._fh = open(self.path, "a+")  # noqa: SIM115 - held for the life of the service
-        try:
-            fcntl.flock(self._fh, fcntl.LOCK_EX | fcntl.LOCK_NB)
-        except BlockingIOError:
-            self._fh.close()
-            raise LockError(
-                f"another convmon run is already using this store (lock {self.path}); stop it first"
-            ) from None
-        self._fh.seek(0)
-        self._fh.truncate()
-        self._fh.write(str(os.getpid()))
-        self._fh.flush()
-        return self
-
-    def __exit__(self, *exc):
-        self._fh.close()
-
-
-def run_service(cfg: Config, *, once: bool = False) -> int:
-    """``convmon run``: APScheduler 3 interval job, one instance, clean shutdown."""
-    if cfg.poll.interval_s <= 0:
-        raise ConfigError("poll.interval_s must be positive", path=cfg.path, key="poll.interval_s")
-    with StoreLock(cfg):
-        monitor = Monitor(cfg)
-        if once:
-            rep = monitor.cycle()
-            log.info(
-                "one cycle: %d rows read, %d running, %d estimates added",
-                rep.rows_read,
-                rep.running,
-                rep.estimates_added,
-            )
-            print(
-                f"cycle done: {rep.rows_read} rows read, {rep.running} running batches, "
-                f"{rep.estimates_added} estimates and {rep.alerts_added} alerts added"
-            )
-            return 0
-        from apscheduler.events import EVENT_JOB_MAX_INSTANCES, EVENT_JOB_MISSED
-        from apscheduler.schedulers.blocking import BlockingScheduler
-
-        sched = BlockingScheduler(timezone="UTC")
-        sched.add_job(
-            monitor.run_cycle_safely,
-            "interval",
-            seconds=cfg.poll.interval_s,
-            max_instances=1,
-            coalesce=True,
-            misfire_grace_time=int(cfg.poll.misfire_grace_s),
-            id="poll",
-            next_run_time=None,
-        )
-        sched.modify_job("poll", next_run_time=_utcnow())
-        sched.add_listener(_log_skipped, EVENT_JOB_MISSED | EVENT_JOB_MAX_INSTANCES)
-
-        def stop(signum, _frame):
-            log.warning("signal %s: stopping after the current cycle", signum)
-            sched.shutdown(wait=True)
-
-        signal.signal(signal.SIGTERM, stop)
-        signal.signal(signal.SIGINT, stop)
-        sched.start()
-    return 0
-
-
-def _log_skipped(event) -> None:
-    """A cycle the scheduler did not run (still busy, or missed beyond the grace time)."""
-    from apscheduler.events import EVENT_JOB_MAX_INSTANCES
-
-    log.warning(
-        "poll cycle skipped (%s) at %s",
-        "previous cycle still running"
-        if event.code == EVENT_JOB_MAX_INSTANCES
-        else "missed its grace time",
-        event.scheduled_run_time,
-    )
-
-
-def _utcnow():
-    from datetime import UTC, datetime
-
-    return datetime.now(UTC)

@@ -17,14 +17,17 @@ from datetime import UTC, datetime
 from pathlib import Path
 
 import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
 
-from . import __version__
-from .config import Config
-from .errors import ConfigError, DataQualityError, KineticsError, UsageError
-from .kinetics import Kinetics, load_kinetics, write_kinetics
-from .physics.fitting import FitSeries, PlantFit, excluded_mask, fit_batches
-from .physics.lab_kinetics import fit_arrhenius, fit_differential, fit_integral
-from .units import to_kelvin
+from .. import __version__
+from ..batch.kinetics import Kinetics
+from ..config import Config, load_kinetics, write_kinetics
+from ..errors import ConfigError, DataQualityError, KineticsError, UsageError
+from ..historian.reader import HistorianReader
+from ..physics.lab_methods import fit_arrhenius, fit_differential, fit_integral
+from ..physics.plant_fit import FitSeries, PlantFit, excluded_mask, fit_batches
+from ..units import to_kelvin
 
 FIT_METHOD = (
     "weighted nonlinear least squares (scipy.optimize.least_squares, trf, analytic "
@@ -95,8 +98,6 @@ def load_series(
     cfg: Config, recipe: str, batches: list[str] | None = None, progress=None
 ) -> tuple[list[FitSeries], list[str]]:
     """The recipe's complete batches (or ``batches``) as fit series, and load warnings."""
-    from .api import open_reader
-
     rc = cfg.recipe(recipe)
     if rc is None:
         raise ConfigError(
@@ -104,7 +105,7 @@ def load_series(
             path=cfg.path,
             key=f"recipes.{recipe}",
         )
-    reader = open_reader(cfg)
+    reader = HistorianReader(cfg)
     series, excluded = [], {}
     try:
         chosen, warnings = _select_batches(reader, recipe, batches)
@@ -727,9 +728,6 @@ def fit_lab_csv(
 # ----------------------------------------------------------------------------- plots
 def write_plots(fit: PlantFit, out: str | Path) -> dict[str, Path]:
     """Parity (observed vs predicted) and residual-vs-time plots beside ``out`` (PNG)."""
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
     paths = plot_paths(out)
     cat = np.concatenate
     rs = fit.residuals

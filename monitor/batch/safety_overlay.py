@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from ..physics.arrhenius import rate_constant
+from ..physics.arrhenius import equilibrium_constant, rate_constant
 from ..physics.safety import adiabatic_temperature_rise, criticality_class, mtsr, tmr_adiabatic
 
 
@@ -26,8 +26,6 @@ def safety_overlay(state, est, safety) -> dict:
     if law.separable:
         dxdt = k * law.scale(state.c_a0) * float(law.h(min(est.conversion, 1.0)))
     else:
-        from ..physics.arrhenius import equilibrium_constant
-
         K = equilibrium_constant(T, law.k_eq_ref, law.dh_rxn_j_per_mol, kin.t_ref_k)
         dxdt = max(float(law.dxdt(est.conversion, k, K)), 0.0)
     # q = (-dH) (-r_A) / rho with -r_A = C_A0 dX/dt [mol/(m^3 s)]

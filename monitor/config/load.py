@@ -15,8 +15,9 @@ from pathlib import Path
 from typing import Any
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
-from .errors import ConfigError
-from .units import TEMPERATURE_UNITS, parse_quantity, to_kelvin
+from ..batch.settings import EstimatorSettings
+from ..errors import ConfigError
+from ..units import TEMPERATURE_UNITS, parse_quantity, to_kelvin
 
 ENV_VAR = "CONVMON_CONFIG"
 DEFAULT_CONFIG = "convmon.toml"
@@ -74,13 +75,8 @@ class PollConfig:
     misfire_grace_s: float = 60.0
 
 
-@dataclass(frozen=True)
-class EstimatorConfig:
-    max_gap_s: float = 300.0
-    monte_carlo_draws: int = 1000
-    seed: int = 20261201
-    mismatch_sigma: float = 4.0
-    horizon_h: float = 72.0
+#: The ``[estimator]`` table is the estimator's own settings.
+EstimatorConfig = EstimatorSettings
 
 
 @dataclass(frozen=True)

@@ -33,7 +33,7 @@ from sqlalchemy import (
 from sqlalchemy.engine import Engine, make_url
 from sqlalchemy.exc import OperationalError, SQLAlchemyError
 
-from ..errors import StoreError
+from ..errors import AlertNotFoundError, StoreError
 
 log = logging.getLogger(__name__)
 meta = MetaData()
@@ -319,12 +319,10 @@ class Store:
 
     def ack_alert(self, alert_id: int, by: str) -> dict:
         """Acknowledge an alert: who saw it is recorded; a cleared alert stays cleared."""
-        from ..errors import UsageError
-
         with self.engine.begin() as conn:
             row = conn.execute(select(alerts).where(alerts.c.id == alert_id)).first()
             if row is None:
-                raise UsageError(f"no alert with id {alert_id}")
+                raise AlertNotFoundError(f"no alert with id {alert_id}")
             state = "acked" if row.state in ("open", "acked") else row.state
             conn.execute(
                 update(alerts).where(alerts.c.id == alert_id).values(acked_by=by, state=state)

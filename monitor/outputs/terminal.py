@@ -1,20 +1,18 @@
-"""The operators' status view (terminal table)."""
+"""Terminal text for people: the status table, an estimate's summary."""
 
 from __future__ import annotations
 
+import sys
 from datetime import datetime
 from zoneinfo import ZoneInfo
 
+from rich.console import Console
 from rich.table import Table
 
+from ..timefmt import duration, from_iso, iso, local
 from ..units import from_kelvin
-from .formats import local
 
 CAUTION = "advisory only - not a control or safety system"
-
-
-def _ts(iso: str | None) -> float | None:
-    return None if iso is None else datetime.fromisoformat(iso).timestamp()
 
 
 def _clock(iso: str | None, zone: str) -> str:
@@ -26,7 +24,7 @@ def _clock(iso: str | None, zone: str) -> str:
 
 def status_table(doc: dict, zone: str, now_s: float | None = None) -> Table:
     beat = doc.get("heartbeat") or {}
-    last = _ts(beat.get("last_good_cycle"))
+    last = from_iso(beat.get("last_good_cycle"))
     title = f"running batches - last good cycle {local(last, zone) if last else '-'}"
     table = Table(title=title, caption=f"times in {zone}; {CAUTION}")
     for col, justify in (
@@ -43,7 +41,7 @@ def status_table(doc: dict, zone: str, now_s: float | None = None) -> Table:
     ):
         table.add_column(col, justify=justify)
     for r in doc.get("status", []):
-        at, start = _ts(r["at"]), _ts(r["start"])
+        at, start = from_iso(r["at"]), from_iso(r["start"])
         ref = now_s if now_s is not None else at
         band = "-"
         if r.get("predicted_end_p10") and r.get("predicted_end_p90"):
@@ -67,24 +65,41 @@ def status_table(doc: dict, zone: str, now_s: float | None = None) -> Table:
             p50,
             band,
             ", ".join(r.get("alerts", [])) or "-",
-            _age(max(ref - at, 0.0)),
+            duration(max(ref - at, 0.0)),
         )
     return table
 
 
-def _age(seconds: float) -> str:
-    if seconds < 7200:
-        return f"{seconds / 60:.0f} min"
-    if seconds < 172_800:
-        return f"{seconds / 3600:.0f} h"
-    return f"{seconds / 86_400:.0f} d"
-
-
 def console(stream=None):
     """A rich console; off a terminal it is 120 columns wide so the table stays readable."""
-    import sys
-
-    from rich.console import Console
-
     stream = stream or sys.stdout
     return Console(file=stream, width=None if stream.isatty() else 120)
+
+
+def estimate_text(e, zone: str) -> str:
+    """A short summary an operator can read at a glance."""
+    lines = [
+        f"batch {e.batch} on {e.unit} ({e.recipe}), at {local(e.at_s, zone)} [{iso(e.at_s)}]",
+        f"  conversion   {e.conversion:.3f} ± {e.conversion_sd:.3f}"
+        f"   (target {e.target_conversion:g}; activity {e.activity:.3f} ± "
+        f"{e.activity_sd:.3f}; {e.n_assays_used} assay(s) used)",
+    ]
+    if e.temperature_k is not None:
+        lines.append(f"  temperature  {from_kelvin(e.temperature_k, 'degC'):.1f} degC")
+    if e.predicted_end_s is not None:
+        lines.append(f"  target at    {local(e.predicted_end_s, zone)}  [{iso(e.predicted_end_s)}]")
+        lines.append(
+            f"  P10 - P90    {local(e.predicted_end_p10_s, zone)}  to  "
+            f"{local(e.predicted_end_p90_s, zone)}"
+        )
+    if e.forecast_note:
+        lines.append(f"  note         {e.forecast_note}")
+    if e.safety:
+        s = e.safety
+        lines.append(
+            f"  thermal      MTSR {from_kelvin(s['mtsr_k'], 'degC'):.1f} ± "
+            f"{s['mtsr_sd_k']:.1f} K, dT_ad {s['delta_t_ad_k']:.1f} K, "
+            f"class {s['criticality_class']} (advisory only)"
+        )
+    lines.extend(f"  warning      {w}" for w in e.warnings)
+    return "\n".join(lines)

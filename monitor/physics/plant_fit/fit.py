@@ -39,10 +39,10 @@ import numpy as np
 from scipy import stats
 from scipy.optimize import least_squares
 
-from .arrhenius import R_J_PER_MOL_K
-from .lab_kinetics import _ORDER_GRID, _pinv_cov
-from .rate_laws import make_law
-from .trace import _GL_W, _GL_X, _cells  # the same quadrature as the monitor's Θ
+from ..arrhenius import R_J_PER_MOL_K
+from ..lab_methods import ORDER_GRID, pinv_cov
+from ..quadrature import GL_NODES, GL_WEIGHTS, split_cells  # the same quadrature as Θ
+from ..rate_laws import make_law
 
 #: Identifiability: a parameter whose standard error exceeds this fraction of its
 #: value (Ea) or this absolute size (order, ln theta_r) is taken as not determined
@@ -199,8 +199,8 @@ class _Problem:
         G, half, starts, first, n_int = [], [], [], [], 0
         n_cells = 0
         for t, T in self.traces:
-            a, b, Ta, Tb, split = _cells(t[:-1], t[1:], T[:-1], T[1:], _EA_PLAN_J, t_ref_k)
-            Tn = (Ta + Tb)[:, None] / 2.0 + ((Tb - Ta) / 2.0)[:, None] * _GL_X[None, :]
+            a, b, Ta, Tb, split = split_cells(t[:-1], t[1:], T[:-1], T[1:], _EA_PLAN_J, t_ref_k)
+            Tn = (Ta + Tb)[:, None] / 2.0 + ((Tb - Ta) / 2.0)[:, None] * GL_NODES[None, :]
             G.append(-(1.0 / Tn - 1.0 / t_ref_k) / R_J_PER_MOL_K)
             half.append((b - a) / 2.0)
             cell_owner = np.arange(len(t) - 1) if split is None else split[0]
@@ -229,8 +229,8 @@ class _Problem:
         """
         G, half, starts, first, gi, frac = self._nodes(t_ref_k)
         E = np.exp(ea_j_per_mol * G)
-        th = np.add.reduceat(half * (E @ _GL_W), starts)
-        s1 = np.add.reduceat(half * ((E * G) @ _GL_W), starts)
+        th = np.add.reduceat(half * (E @ GL_WEIGHTS), starts)
+        s1 = np.add.reduceat(half * ((E * G) @ GL_WEIGHTS), starts)
         cth = np.concatenate([[0.0], np.cumsum(th)])
         cs1 = np.concatenate([[0.0], np.cumsum(s1)])
         return (cth[gi] - cth[first] + frac * th[gi], cs1[gi] - cs1[first] + frac * s1[gi])
@@ -560,7 +560,7 @@ def fit_batches(
     if free_order:
         shape_grid = [
             {"order": n, **{k: shape_start[k] for k in shape_free if k != "order"}}
-            for n in _ORDER_GRID
+            for n in ORDER_GRID
         ]
     else:
         shape_grid = [{k: shape_start[k] for k in shape_free}]
@@ -615,7 +615,7 @@ def fit_batches(
             m_act = int(active.sum())
             p_glob = spec_.n_global()
             s2 = _variance_factor(float(model._r @ model._r), max(m_act - p_glob, 1), sd_known)
-            cov = s2 * _pinv_cov(model._J)
+            cov = s2 * pinv_cov(model._J)
             var_phi = np.diag(cov)[p_glob:]
             var_phi = np.where(np.isfinite(var_phi), var_phi, 0.0)
             tau_new = max(math.sqrt(float(np.mean(x[p_glob:] ** 2 + var_phi))), TAU_FLOOR)
@@ -654,7 +654,7 @@ def fit_batches(
         m_act = int(active.sum())
         dof_ = m_act - model_.spec.n_global()
         s2_ = _variance_factor(float(model_._r @ model_._r), dof_, sd_known)
-        return s2_ * _pinv_cov(model_._J), s2_, dof_
+        return s2_ * pinv_cov(model_._J), s2_, dof_
 
     cov, s2, dof = covariance(model)
     lnk, ea, shape, phis = model.unpack(x)
@@ -776,7 +776,7 @@ def _result(
     r = model._r
     s2 = float(r @ r) / dof if dof > 0 else math.nan
     factor = _variance_factor(float(r @ r), dof, sd_known)
-    cov = factor * _pinv_cov(model._J) if dof > 0 else np.full((len(x), len(x)), np.nan)
+    cov = factor * pinv_cov(model._J) if dof > 0 else np.full((len(x), len(x)), np.nan)
     names = spec.names(prob.n_series)
     lnk, ea, shape, phis = model.unpack(x)
     law = spec.law(shape)

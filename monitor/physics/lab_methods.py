@@ -13,8 +13,8 @@ Pure functions (SI units, no I/O, no clock):
 
 Standard errors are ``cov = s^2 (J^T J)^-1`` with ``s^2 = SSR/(m - p)`` at the
 solution (Bard, Nonlinear Parameter Estimation, 1974, ch. 7); the pseudo-inverse
-`_pinv_cov` and the start grid of orders are shared with the joint plant fit of
-`monitor.physics.fitting`.
+`pinv_cov` and the start grid of orders are shared with the joint plant fit of
+`monitor.physics.plant_fit`.
 """
 
 from __future__ import annotations
@@ -29,7 +29,7 @@ from .arrhenius import R_J_PER_MOL_K
 from .rate_laws import power_G, power_G_inv
 
 #: Reaction orders tried for a start (integral method and the joint plant fit) [-].
-_ORDER_GRID = np.array([0.5, 1.0, 1.5, 2.0, 2.5, 3.0])
+ORDER_GRID = np.array([0.5, 1.0, 1.5, 2.0, 2.5, 3.0])
 
 
 # ============================================================== Arrhenius regression
@@ -123,10 +123,10 @@ def _cov_from_jac(J: np.ndarray, r: np.ndarray) -> tuple[np.ndarray, float, int]
     m, p = J.shape
     dof = m - p
     s2 = float(r @ r) / dof if dof > 0 else math.nan
-    return s2 * _pinv_cov(J), s2, dof
+    return s2 * pinv_cov(J), s2, dof
 
 
-def _pinv_cov(J: np.ndarray) -> np.ndarray:
+def pinv_cov(J: np.ndarray) -> np.ndarray:
     """``(J^T J)^-1``; a direction the data cannot see gets an infinite variance.
 
     Eigen-decomposition of the column-scaled normal matrix (small and symmetric:
@@ -203,7 +203,7 @@ def fit_integral(t_s, c, c0: float | None = None, order: float | None = None) ->
     # linearised start: G(X) = k C_A0^(n-1) t through the origin, for a few orders
     X = np.clip(1.0 - c / c0, 1e-6, 1 - 1e-6)
     best = None
-    for n in _ORDER_GRID if free else [order]:
+    for n in ORDER_GRID if free else [order]:
         g = power_G(X, n)
         k = float(np.sum(g * t) / np.sum(t * t)) / c0 ** (n - 1.0)
         p = (

@@ -1,0 +1,44 @@
+"""Configuration: the TOML file, validated at load; kinetics files."""
+
+from .kinetics_file import load_kinetics, write_kinetics
+from .load import (
+    DEFAULT_CONFIG,
+    ENV_VAR,
+    Config,
+    EstimatorConfig,
+    EventsColumns,
+    HistorianConfig,
+    PollConfig,
+    RecipeConfig,
+    SafetyConfig,
+    SamplesColumns,
+    SiteConfig,
+    StoreConfig,
+    UnitConfig,
+    WritebackConfig,
+    config_from_dict,
+    expand_env,
+    load_config,
+)
+
+__all__ = [
+    "DEFAULT_CONFIG",
+    "ENV_VAR",
+    "Config",
+    "EstimatorConfig",
+    "EventsColumns",
+    "HistorianConfig",
+    "PollConfig",
+    "RecipeConfig",
+    "SafetyConfig",
+    "SamplesColumns",
+    "SiteConfig",
+    "StoreConfig",
+    "UnitConfig",
+    "WritebackConfig",
+    "config_from_dict",
+    "expand_env",
+    "load_config",
+    "load_kinetics",
+    "write_kinetics",
+]

@@ -1,0 +1,1 @@
+"""Fitting kinetics from history or lab runs: sources, candidates, the job, plots."""

@@ -1,0 +1,1 @@
+"""The live monitor: poll cycle, batch registry, store lock, scheduler."""
