@@ -327,3 +327,48 @@ REGRESSION = [
     29311.62810383893,
     31832.356685707873,
 ]  # regression
+
+
+# ---------------------------------------------------------------------------
+# A model every assay contradicts (issue #10: never a confident wrong number)
+
+
+def test_a_model_every_assay_contradicts_says_so_and_raises_a_critical_alert():
+    from monitor.batch import alert_rules
+
+    rng = np.random.default_rng(5)
+    sol, _ = truth(1.0)
+    y = noisy_assays(sol, rng)
+    wrong = dataclasses.replace(KIN, ea_j_per_mol=-68e3)  # a sign error in the kinetics file
+    bad = make_state(dataclasses.replace(RECIPE, kinetics=wrong))
+    bad.add_assays(ASSAY_T[:1], y[:1])  # the first assay: the prior alone is far off
+    est = estimate(bad, 3600.0)
+    assert est.model_contradicted and est.n_assays_used == 0
+    assert est.findings[0].kind == Kind.MODEL_CONTRADICTED  # it leads
+    conds = {
+        c.kind: c
+        for c in alert_rules.evaluate(est, running=True, now_s=3600.0, stale_after_s=900.0)
+    }
+    assert conds["model_contradicted"].active
+    assert str(conds["model_contradicted"].severity) == "critical"
+    raised = alert_rules.alert_changes("B1", list(conds.values()), {}, est.at_s)
+    assert "model_contradicted" in {c["kind"] for c in raised if c["op"] == "raise"}
+    # the right kinetics: the same assay agrees, and the open alert is cleared
+    good = make_state()
+    good.add_assays(ASSAY_T[:1], y[:1])
+    fixed = estimate(good, 3600.0)
+    assert not fixed.model_contradicted and fixed.n_assays_used == 1
+    conds = alert_rules.evaluate(fixed, running=True, now_s=3600.0, stale_after_s=900.0)
+    changes = alert_rules.alert_changes("B1", conds, {"model_contradicted": 7}, fixed.at_s)
+    assert {"op": "clear", "id": 7, "cleared_at_s": 3600.0} in changes
+
+
+def test_one_mismatched_assay_among_agreeing_ones_is_not_a_contradiction():
+    rng = np.random.default_rng(11)
+    sol, _ = truth(0.95)
+    y = noisy_assays(sol, rng)
+    y[1] += 10 * RECIPE.assay_sd
+    state = make_state()
+    state.add_assays(ASSAY_T, y)
+    est = estimate(state, AT_S)
+    assert est.n_assays_used == 2 and not est.model_contradicted

@@ -27,6 +27,18 @@ class Condition:
     data: dict = field(default_factory=dict, compare=False, hash=False)
 
 
+def model_contradicted(est) -> Condition:
+    """Every assay of the batch contradicts the model: its numbers must not be trusted."""
+    found = of_kind(est.findings, Kind.MODEL_CONTRADICTED)
+    return Condition(
+        "model_contradicted",
+        Severity.CRITICAL,
+        est.model_contradicted,
+        found[0].message if found else "",
+        found[0].data if found else {},
+    )
+
+
 def assay_disagrees(est) -> Condition:
     """An assay the model contradicts beyond the mismatch limit (left out of the estimate)."""
     found = of_kind(est.findings, Kind.ASSAY_MISMATCH)
@@ -61,6 +73,7 @@ def no_fresh_data(est, *, running: bool, now_s: float, stale_after_s: float) -> 
 def evaluate(est, *, running: bool, now_s: float, stale_after_s: float) -> list[Condition]:
     """Every rule's condition for one estimate."""
     return [
+        model_contradicted(est),
         assay_disagrees(est),
         target_unreachable(est),
         no_fresh_data(est, running=running, now_s=now_s, stale_after_s=stale_after_s),

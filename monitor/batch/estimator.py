@@ -45,6 +45,7 @@ class Estimate:
     mismatched_assays: list = field(default_factory=list)
     kinetics_version: str = ""
     safety: dict = field(default_factory=dict)
+    model_contradicted: bool = False
 
     @property
     def warnings(self) -> list[str]:
@@ -96,6 +97,20 @@ def estimate(
                 f"{abs(post.z_loo[i]):.1f} sd from the model; not used",
                 {"sample_s": float(t_a[i]), "value": float(y_a[i]), "z": float(post.z_loo[i])},
             )
+        )
+    contradicted = len(t_a) > 0 and not post.used.any()
+    if contradicted:
+        findings.insert(
+            0,
+            Finding(
+                Kind.MODEL_CONTRADICTED,
+                Severity.CRITICAL,
+                f"model contradicted: all {len(t_a)} assay(s) are more than "
+                f"{settings.mismatch_sigma:g} sd from the model, so conversion and end time "
+                "come from the kinetics alone and must not be trusted; check the kinetics "
+                "file, the recipe and the assays",
+                {"n_assays": len(t_a), "max_abs_z": float(np.max(np.abs(post.z_loo)))},
+            ),
         )
     if not len(t_a):
         findings.append(
@@ -175,6 +190,7 @@ def estimate(
         temperature_k=T_now,
         mismatched_assays=[float(t_a[i]) for i in np.flatnonzero(~post.used)],
         kinetics_version=state.kinetics.version,
+        model_contradicted=contradicted,
     )
     if safety is not None:
         est.safety = safety_overlay(state, est, safety)

@@ -14,6 +14,7 @@ from enum import StrEnum
 class Kind(StrEnum):
     """What was found (stable names: they reach JSON and the store)."""
 
+    MODEL_CONTRADICTED = "model_contradicted"
     ASSAY_MISMATCH = "assay_mismatch"
     NO_ASSAYS = "no_assays"
     TEMPERATURE_STALE = "temperature_stale"

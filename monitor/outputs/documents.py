@@ -61,6 +61,7 @@ def estimate_json(e) -> dict:
         "warnings": list(e.warnings),
         "temperature_k": e.temperature_k,
         "kinetics_version": e.kinetics_version,
+        "model_contradicted": e.model_contradicted,
     }
     doc.update(e.safety)
     return doc

@@ -49,11 +49,12 @@ def status_table(doc: dict, zone: str, now_s: float | None = None) -> Table:
                 f"{_clock(r['predicted_end_p10'], zone)[4:]} - "
                 f"{_clock(r['predicted_end_p90'], zone)[4:]}"
             )
-        p50 = (
-            _clock(r["predicted_end"], zone)
-            if r.get("predicted_end")
-            else (r.get("forecast_note") or "-")[:30]
-        )
+        if r.get("model_contradicted"):
+            p50, band = "model contradicted", "-"
+        elif r.get("predicted_end"):
+            p50 = _clock(r["predicted_end"], zone)
+        else:
+            p50 = (r.get("forecast_note") or "-")[:30]
         temp = r.get("temperature_k")
         table.add_row(
             r["unit"],
@@ -78,7 +79,10 @@ def console(stream=None):
 
 def estimate_text(e, zone: str) -> str:
     """A short summary an operator can read at a glance."""
-    lines = [
+    lines = []
+    if e.model_contradicted:
+        lines.append("MODEL CONTRADICTED BY EVERY ASSAY: the figures below are not trustworthy")
+    lines += [
         f"batch {e.batch} on {e.unit} ({e.recipe}), at {local(e.at_s, zone)} [{iso(e.at_s)}]",
         f"  conversion   {e.conversion:.3f} ± {e.conversion_sd:.3f}"
         f"   (target {e.target_conversion:g}; activity {e.activity:.3f} ± "
@@ -86,7 +90,9 @@ def estimate_text(e, zone: str) -> str:
     ]
     if e.temperature_k is not None:
         lines.append(f"  temperature  {from_kelvin(e.temperature_k, 'degC'):.1f} degC")
-    if e.predicted_end_s is not None:
+    if e.model_contradicted:
+        lines.append("  target at    not shown: the model is contradicted by the assays")
+    elif e.predicted_end_s is not None:
         lines.append(f"  target at    {local(e.predicted_end_s, zone)}  [{iso(e.predicted_end_s)}]")
         lines.append(
             f"  P10 - P90    {local(e.predicted_end_p10_s, zone)}  to  "
