@@ -41,6 +41,7 @@ from .spc import check_lambda, ewma_sigma_factor
 
 METHODS = ("quadrature", "markov")
 _INV_SQRT_2PI = 1.0 / math.sqrt(2.0 * math.pi)
+_ROUNDING = 64 * np.finfo(float).eps  # attainable relative precision per unit of ARL
 
 
 class ArlResult(NamedTuple):
@@ -71,7 +72,17 @@ def shewhart_arl(L: float = 3.0, shift: float = 0.0) -> float:
 
 
 def converge(solve: Callable[[int], float], start: int, rtol: float, max_nodes: int) -> ArlResult:
-    """Double the size passed to ``solve`` until two answers agree to ``rtol``."""
+    """Double the size passed to ``solve`` until two answers agree to ``rtol``.
+
+    ``I - A`` is nearly singular for a huge ARL (condition number about the
+    ARL), so no answer is better than about ``eps * ARL`` relative; the
+    tolerance is widened to that where it is larger than ``rtol``.
+
+    Examples
+    --------
+    >>> converge(lambda n: 2.0 + 1.0 / n**4, 4, 1e-6, 1024).nodes
+    64
+    """
     if not rtol > 0:
         raise ValueError(f"rtol must be positive, got {rtol}")
     n, prev = start, solve(start)
@@ -79,7 +90,7 @@ def converge(solve: Callable[[int], float], start: int, rtol: float, max_nodes: 
         n *= 2
         cur = solve(n)
         rel = abs(cur - prev) / abs(cur)
-        if rel <= rtol:
+        if rel <= max(rtol, _ROUNDING * abs(cur)):
             return ArlResult(float(cur), n, float(rel))
         if n >= max_nodes:
             raise ValueError(f"ARL not converged to {rtol} with {n} nodes (last change {rel:.2g})")

@@ -202,16 +202,12 @@ def cusum_arl(
         For a zero start: how the one-sided ARLs are solved. A head start is
         always solved by the two-dimensional chain.
     nodes, rtol
-        As for `cusum_arl_one_sided`; for the two-dimensional chain ``nodes``
-        is the number of cells per axis (default: doubled from 32 until the
-        change is below ``rtol``, default 1e-4; at most 128).
+        As for `cusum_arl_one_sided`, or for `two_sided_chain_arl` with a head start.
 
     Notes
     -----
     Zero start: ``1/ARL = 1/ARL+ + 1/ARL-`` (Lucas & Crosier 1982). Head
-    start: the chain on the pair of sums; its error falls as 1/cells^2, so
-    the answers for ``n/2`` and ``n`` cells are extrapolated (Richardson),
-    ``(4 A(n) - A(n/2)) / 3``.
+    start: `two_sided_chain_arl`, the chain on the pair of sums.
 
     Examples
     --------
@@ -221,21 +217,55 @@ def cusum_arl(
     check_method(method)
     _check_design(k, h, head_start)
     if head_start > 0.0:
-
-        @functools.cache
-        def chain(n):
-            return _two_sided_markov(k, h, shift, n, head_start)
-
-        def solve(n):  # Richardson: the chain's error falls as 1/cells^2
-            return (4.0 * chain(n) - chain(n // 2)) / 3.0
-
-        rtol = rtol if rtol is not None else 1e-4
-        return fixed_or_converged(solve, nodes, 32, rtol, 128)
+        return two_sided_chain_arl(k, h, shift, head_start=head_start, nodes=nodes, rtol=rtol)
     options = {"method": method, "nodes": nodes, "rtol": rtol}
     up = cusum_arl_one_sided(k, h, shift, **options)
     down = cusum_arl_one_sided(k, h, -shift, **options)
     arl = 1.0 / (1.0 / up.arl + 1.0 / down.arl)
     return ArlResult(arl, max(up.nodes, down.nodes), max(up.rel_change, down.rel_change))
+
+
+def two_sided_chain_arl(
+    k: float,
+    h: float,
+    shift: float = 0.0,
+    *,
+    head_start: float = 0.0,
+    nodes: int | None = None,
+    rtol: float | None = None,
+) -> ArlResult:
+    """Two-sided CUSUM ARL from the chain on the pair of sums (any head start).
+
+    Parameters
+    ----------
+    k, h, shift, head_start : float
+        As for `cusum_arl` [sigma].
+    nodes : int, optional
+        Cells per axis; default: doubled from 32 until converged (at most 128).
+    rtol : float, optional
+        Convergence tolerance, default 1e-4.
+
+    Notes
+    -----
+    The chain's error falls as 1/cells^2, so the answers for ``n/2`` and
+    ``n`` cells are extrapolated (Richardson), ``(4 A(n) - A(n/2)) / 3``.
+
+    Examples
+    --------
+    >>> round(two_sided_chain_arl(0.5, 4.0, head_start=2.0).arl, 1)
+    148.7
+    """
+    _check_design(k, h, head_start)
+
+    @functools.cache
+    def chain(n):
+        return _two_sided_markov(k, h, shift, n, head_start)
+
+    def solve(n):
+        return (4.0 * chain(n) - chain(n // 2)) / 3.0
+
+    rtol = rtol if rtol is not None else 1e-4
+    return fixed_or_converged(solve, nodes, 32, rtol, 128)
 
 
 def siegmund_cusum_arl(k: float, h: float, shift: float = 0.0) -> float:

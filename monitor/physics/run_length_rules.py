@@ -3,7 +3,7 @@
 Exactly, by a Markov chain whose state is the zone of the last four points and
 the length of the current run on one side of the centre (Champ & Woodall
 1987), and by a seeded simulation that applies the very flags of
-`monitor.physics.spc.western_electric_rules`, so each checks the other.
+`monitor.physics.run_rules.western_electric_rules`, so each checks the other.
 
 References
 ----------
@@ -22,7 +22,7 @@ from scipy.sparse import coo_matrix, identity
 from scipy.sparse.linalg import splu
 from scipy.stats import norm
 
-from .spc import WESTERN_ELECTRIC_RULES, run_rule_flags
+from .run_rules import WESTERN_ELECTRIC_RULES, run_rule_flags
 
 #: Zone codes of a non-signalling point: +1 (0, 1], +2 (1, 2], +3 (2, 3] sigma, and
 #: the same negative below the centre; 0 pads the history before the first point.
@@ -81,6 +81,12 @@ def run_rules_transitions(rules=(1, 2, 3, 4), shift: float = 0.0):
         ``(zones of the last points, signed run length)``; state 0 is the start.
     q : scipy.sparse.csc_matrix
         ``q[i, j]`` = probability of moving from state i to state j without a signal.
+
+    Examples
+    --------
+    >>> states, q = run_rules_transitions((1, 4))
+    >>> len(states), round(float(q[0].sum()), 4)  # 7 runs a side + start; P(|z| <= 3)
+    (15, 0.9973)
     """
     rules = _check_rules(rules)
     probs = _zone_probabilities(shift)

@@ -1,10 +1,11 @@
-"""Control charts for one figure per batch: individuals, EWMA, CUSUM, run rules.
+"""Control charts for one figure per batch: individuals, EWMA and CUSUM.
 
 Everything here is dimensionless or in the unit of the figure being charted
 (activity, time to target, final conversion, ...); a chart only needs the
 series ``x`` and, for judging new batches, a centre and a sigma taken from a
 separate baseline (never from the batches being judged). Standardised values
-``z = (x - centre) / sigma`` are in units of that sigma.
+``z = (x - centre) / sigma`` are in units of that sigma. The Western Electric
+run rules are in `monitor.physics.run_rules`.
 
 References
 ----------
@@ -12,8 +13,6 @@ Montgomery, D. C., Introduction to Statistical Quality Control, 7th ed., Wiley
 (2013): ch. 6.4 (individuals and moving range), 9.1 (tabular CUSUM, fast
 initial response, the last-zero estimate of the change), 9.2 (EWMA); section
 numbers from memory.
-Western Electric Co., Statistical Quality Control Handbook (1956), the zone
-rules 1-4 (pages from memory: about pp. 25-28).
 Lucas, J. M. & Crosier, R. B., "Fast initial response for CUSUM
 quality-control schemes", Technometrics 24 (1982) 199-205.
 Lucas, J. M. & Saccucci, M. S., "Exponentially weighted moving average control
@@ -30,14 +29,6 @@ from scipy.signal import lfilter
 
 #: d2 for moving ranges of two consecutive points: E|X1 - X2| / sigma = 2/sqrt(pi) [-].
 D2_MOVING_RANGE_2 = 2.0 / math.sqrt(math.pi)
-
-#: The Western Electric zone rules, by number.
-WESTERN_ELECTRIC_RULES = {
-    1: "one point beyond 3 sigma",
-    2: "two of three consecutive points beyond 2 sigma on the same side",
-    3: "four of five consecutive points beyond 1 sigma on the same side",
-    4: "eight consecutive points on the same side of the centre line",
-}
 
 
 def as_series(x, minimum: int = 1) -> np.ndarray:
@@ -241,7 +232,8 @@ def ewma_chart(
         From a baseline [unit of the figure].
     lam : float
         EWMA weight [-]. The defaults (0.10, 2.814) give an in-control ARL of
-        about 500 with asymptotic limits (Lucas & Saccucci 1990, Table 3).
+        about 500 with asymptotic limits (Lucas & Saccucci 1990; their Table 3,
+        table number from memory).
     L : float
         Limit width in standard deviations of the statistic [-].
     exact : bool
@@ -311,74 +303,6 @@ def tabular_cusum(
         lo = max(0.0, lo - zi - k)
         upper[i], lower[i] = up, lo
     return CusumChart(upper, lower, upper > h, lower > h)
-
-
-def run_rule_flags(z: np.ndarray, rules=(1, 2, 3, 4)) -> np.ndarray:
-    """Western Electric rules on standardised points along the last axis.
-
-    ``z`` may carry NaN as padding before the first point: NaN is on neither
-    side and beyond nothing. Returns booleans of shape ``z.shape + (4,)``;
-    column ``r - 1`` is rule ``r`` (all False for a rule not asked for).
-    """
-    bad = set(rules) - set(WESTERN_ELECTRIC_RULES)
-    if bad:
-        raise ValueError(f"unknown run rules {sorted(bad)}; known: 1, 2, 3, 4")
-    z = np.asarray(z, dtype=float)
-    flags = np.zeros(z.shape + (4,), dtype=bool)
-    with np.errstate(invalid="ignore"):
-        if 1 in rules:
-            flags[..., 0] = np.abs(z) > 3.0
-        for rule, limit, window, needed in ((2, 2.0, 3, 2), (3, 1.0, 5, 4), (4, 0.0, 8, 8)):
-            if rule not in rules:
-                continue
-            for side in (z > limit, z < -limit):
-                count = _trailing_count(side, window)
-                flags[..., rule - 1] |= side & (count >= needed)
-    return flags
-
-
-def _trailing_count(mask: np.ndarray, window: int) -> np.ndarray:
-    """Number of True in the ``window`` points ending at each point (fewer at the start)."""
-    c = np.cumsum(mask, axis=-1, dtype=np.int64)
-    shifted = np.zeros_like(c)
-    shifted[..., window:] = c[..., :-window]
-    return c - shifted
-
-
-def western_electric_rules(x, centre: float, sigma: float, rules=(1, 2, 3, 4)) -> np.ndarray:
-    """Which Western Electric rule fired at which point.
-
-    Parameters
-    ----------
-    x : array_like
-        The figures in time order [unit of the figure].
-    centre, sigma : float
-        From a baseline [unit of the figure].
-    rules : iterable of int
-        Which of rules 1-4 to apply (see `WESTERN_ELECTRIC_RULES`).
-
-    Returns
-    -------
-    numpy.ndarray of bool, shape (n, 4)
-        ``fired[i, r - 1]`` is True when rule ``r`` fires at point ``i``.
-
-    Notes
-    -----
-    A rule fires at the point that completes its pattern, and that point must
-    itself be one of the pattern's points (for rule 2, itself beyond 2 sigma on
-    the pattern's side), so a pattern is not reported again at every later
-    point of its window. Near the start a window holds the points there are:
-    two points beyond 2 sigma at points 0 and 1 fire rule 2. For the first
-    signal this convention changes nothing, so the run lengths of
-    `monitor.physics.run_length_rules` apply.
-
-    Examples
-    --------
-    >>> f = western_electric_rules([0.5, 2.5, 0.1, 2.4, 3.5], 0.0, 1.0)
-    >>> [sorted(int(r) + 1 for r in np.flatnonzero(row)) for row in f]
-    [[], [], [], [2], [1, 2]]
-    """
-    return run_rule_flags(standardise(x, centre, sigma), tuple(rules))
 
 
 def first_signal(flags) -> int | None:
