@@ -98,6 +98,7 @@ def converge(solve: Callable[[int], float], start: int, rtol: float, max_nodes: 
 
 
 def fixed_or_converged(solve, nodes, start, rtol, max_nodes) -> ArlResult:
+    """`converge` when ``nodes`` is None, else one solve with its change from ``nodes // 2``."""
     if nodes is None:
         return converge(solve, start, rtol, max_nodes)
     if nodes < 2:
@@ -167,7 +168,8 @@ def _ewma_markov(lam, c, shift, n_half):
     return float(arl[n_half])
 
 
-def check_method(method):
+def check_method(method: str) -> None:
+    """A known solution method, else ValueError."""
     if method not in METHODS:
         raise ValueError(f"method must be one of {METHODS}, got {method!r}")
 
