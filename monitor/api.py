@@ -5,11 +5,12 @@ from __future__ import annotations
 from . import timefmt
 from .batch.estimator import Estimate, estimate
 from .batch.findings import Finding, Kind, Severity
+from .batch.state import state_from_data
 from .config import Config
+from .config.models import recipe_model
 from .errors import DataQualityError, UsageError
 from .historian.model import Batch
 from .historian.reader import HistorianReader
-from .service.registry import build_state, recipe_model
 from .store import Store
 
 
@@ -74,7 +75,7 @@ def estimate_batch(
             f"({_unit_tag(cfg, b.unit)}) in its window"
         )
     model = recipe_model(cfg, b.recipe)
-    state = build_state(cfg, data, model)
+    state = state_from_data(data, model, cfg.estimator.max_gap_s)
     at = until if until is not None else (now_s or float(data.temperature.t_s[-1]))
     rc = cfg.recipe(b.recipe)
     est = estimate(state, at, cfg.estimator, safety=rc.safety)

@@ -9,6 +9,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..errors import DataQualityError
 from ..physics.arrhenius import R_J_PER_MOL_K, arrhenius_factor, equilibrium_constant
 from ..physics.reversible import refine_trace, reversible_segments, step_reversible
 from ..physics.theta import ThetaTrace
@@ -217,3 +218,32 @@ class BatchState:
 def prior_sd(kin: Kinetics) -> float:
     """Prior sd of ``ln alpha``: batch-to-batch spread plus the ``ln k_ref`` uncertainty."""
     return float(np.hypot(max(kin.activity_sd, 1e-3), kin.stderr_k_ref / kin.k_ref))
+
+
+def state_from_data(data, model: RecipeModel, max_gap_s: float = 300.0) -> BatchState:
+    """A batch state from what the historian reader delivered (a ``BatchData``).
+
+    The initial concentration is the charge tag's value when it is positive, else the
+    recipe's ``initial_concentration``.
+    """
+    b = data.batch
+    c_a0, from_tag = data.charge, True
+    if c_a0 is None or not c_a0 > 0:
+        c_a0, from_tag = model.initial_concentration, False
+    if c_a0 is None:
+        raise DataQualityError(
+            f"batch {b.batch}: no charge sample and no recipes.{b.recipe}.initial_concentration"
+        )
+    state = BatchState(
+        b.batch,
+        b.unit,
+        model,
+        b.start_s,
+        float(c_a0),
+        end_s=b.end_s,
+        charge_from_tag=from_tag,
+        max_gap_s=max_gap_s,
+    )
+    state.add_temperature(data.temperature.t_s, data.temperature.value)
+    state.add_assays(data.assays.t_s, data.assays.value)
+    return state

@@ -1,1 +1,1 @@
-"""The live monitor: poll cycle, batch registry, store lock, scheduler."""
+"""The live monitor: poll cycle, store lock, scheduler."""

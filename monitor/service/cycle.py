@@ -16,14 +16,15 @@ from dataclasses import dataclass, field
 
 from ..batch import alert_rules
 from ..batch.estimator import estimate
+from ..batch.state import state_from_data
 from ..config import Config
+from ..config.models import recipe_model
 from ..errors import MonitorError
 from ..historian.model import Batch
 from ..historian.reader import HistorianReader
 from ..outputs.documents import estimate_record
 from ..outputs.writeback import WriteBack
 from ..store import Store
-from .registry import build_state, recipe_model
 
 log = logging.getLogger(__name__)
 
@@ -86,7 +87,7 @@ class Monitor:
                 )
             return None
         data = self.reader.read_batch(b, until_s=until_s)
-        state = build_state(self.cfg, data, self._model(b.recipe))
+        state = state_from_data(data, self._model(b.recipe), self.cfg.estimator.max_gap_s)
         self.states[b.batch] = state
         return state
 
