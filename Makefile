@@ -4,7 +4,7 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed
 
-# small dense matrices: one BLAS thread per process (see monitor/cli.py)
+# small dense matrices: one BLAS thread per process (see monitor/cli/__init__.py)
 export OPENBLAS_NUM_THREADS ?= 1
 
 .PHONY: demo test lint bench clean venv

@@ -2,15 +2,20 @@
 
 from __future__ import annotations
 
+import os
+from pathlib import Path
+
 from . import timefmt
 from .batch.estimator import Estimate, estimate
 from .batch.findings import Finding, Kind, Severity
+from .batch.kinetics import Kinetics
 from .batch.state import state_from_data
-from .config import Config
+from .config import DEFAULT_CONFIG, ENV_VAR, Config, load_config, load_kinetics
 from .config.models import recipe_model
 from .errors import DataQualityError, UsageError
 from .historian.model import Batch
 from .historian.reader import HistorianReader
+from .outputs.documents import batch_json
 from .store import Store
 
 
@@ -41,6 +46,16 @@ def list_batches(cfg: Config, unit: str | None = None, recipe: str | None = None
     finally:
         reader.close()
     return batches, counts, problems
+
+
+def batches_document(cfg: Config, unit: str | None = None, recipe: str | None = None) -> dict:
+    """The ``batches`` document: each batch with its good-sample counts, and the problems
+    found in the events table (one message each)."""
+    batches, counts, problems = list_batches(cfg, unit, recipe)
+    return {
+        "batches": [batch_json(b, counts.get(b.batch, (0, 0))) for b in batches],
+        "problems": [p.message for p in problems],
+    }
 
 
 def estimate_batch(
@@ -155,3 +170,23 @@ def ack_alert(cfg: Config, alert_id: int, by: str) -> dict:
         return alert_json(store.ack_alert(alert_id, by))
     finally:
         store.close()
+
+
+def optional_config(path: str | os.PathLike | None) -> Config | None:
+    """The configuration at ``path``; without one, the default file if it exists, else None.
+
+    For jobs that can run without a site (a lab fit): a file the user named must load,
+    the default one may be absent.
+    """
+    if path is None and not Path(os.environ.get(ENV_VAR) or DEFAULT_CONFIG).exists():
+        return None
+    return load_config(path)
+
+
+def lab_prior(cfg: Config | None, recipe: str | None) -> tuple[Kinetics | None, Path | None]:
+    """The prior for a lab fit: the recipe's current kinetics file, when the
+    configuration has the recipe and the file exists; else ``(None, None)``."""
+    rc = cfg.recipe(recipe) if cfg is not None and recipe else None
+    if rc is None or not Path(rc.kinetics).exists():
+        return None, None
+    return load_kinetics(rc.kinetics), Path(rc.kinetics)

@@ -84,12 +84,16 @@ class LockError(MonitorError):
     exit_code = 3
 
 
+#: Exit code of a command stopped with Ctrl-C (the shell's 128 + SIGINT).
+INTERRUPTED = 130
+
 #: Exit codes of the command line, and what each means (README and --help show this).
 EXIT_CODES: dict[int, str] = {
     0: "success",
     2: "bad usage or configuration",
     3: "historian or store unreachable or unreadable",
     4: "an integrity check failed",
+    INTERRUPTED: "interrupted (Ctrl-C)",
 }
 
 

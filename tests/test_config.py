@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import subprocess
-import sys
 import textwrap
 
 import pytest
@@ -118,82 +116,3 @@ def test_safety_quantities_are_converted_to_si():
     assert s.heat_of_reaction_j_per_mol == pytest.approx(-20.3 * 4184.0, rel=1e-3)
     assert s.density_kg_per_m3 == pytest.approx(950.0)
     assert s.mtt_k == pytest.approx(353.15)  # 176 degF = 80 degC exactly
-
-
-def test_cli_broken_config_is_one_line_exit_2(tmp_path):
-    p = write(tmp_path, BASE + "\n[poll]\nbogus = 1\n")
-    r = subprocess.run(
-        [sys.executable, "-m", "monitor", "batches", "--config", str(p)],
-        capture_output=True,
-        text=True,
-    )
-    assert r.returncode == 2
-    assert r.stderr.strip().count("\n") == 0 and "poll.bogus" in r.stderr
-    assert "Traceback" not in r.stderr
-
-
-def test_every_command_has_help_with_an_example():
-    from monitor.cli import COMMANDS, build_parser
-
-    parser = build_parser()
-    assert COMMANDS
-    for name in COMMANDS:
-        r = subprocess.run(
-            [sys.executable, "-m", "monitor", name, "--help"], capture_output=True, text=True
-        )
-        assert r.returncode == 0, name
-        assert f"convmon {name}" in r.stdout.split("example:")[-1], name
-    assert "examples:" in parser.format_help()
-
-
-def _export(tmp_path, *, events=True):
-    import sqlite3
-
-    db = tmp_path / "plant.db"
-    con = sqlite3.connect(db)
-    con.execute(
-        "CREATE TABLE tag_samples (seq INTEGER PRIMARY KEY, tag TEXT, ts TEXT, "
-        "value REAL, quality INTEGER)"
-    )
-    con.execute(
-        "CREATE TABLE batch_events (seq INTEGER PRIMARY KEY, batch_id TEXT, unit TEXT, "
-        "recipe TEXT, event TEXT, ts TEXT)"
-    )
-    if events:
-        con.execute(
-            "INSERT INTO batch_events VALUES (1, 'B1', 'R-1', 'AX', 'start', "
-            "'2026-10-01T06:00:00+00:00')"
-        )
-    con.commit()
-    con.close()
-    return db
-
-
-def test_cli_historian_problems_exit_codes(tmp_path):
-    """Unreachable export -> 3; a configured table the database lacks -> 2; no batches -> 3."""
-    cfg = write(tmp_path, BASE)
-    r = subprocess.run(
-        [sys.executable, "-m", "monitor", "batches", "--config", str(cfg)],
-        capture_output=True,
-        text=True,
-    )
-    assert r.returncode == 3 and "unreachable" in r.stderr and "Traceback" not in r.stderr
-    _export(tmp_path, events=False)
-    r = subprocess.run(
-        [sys.executable, "-m", "monitor", "batches", "--config", str(cfg)],
-        capture_output=True,
-        text=True,
-    )
-    assert r.returncode == 3 and "no batches" in r.stderr
-    bad = write(
-        tmp_path,
-        BASE.replace(
-            'url = "sqlite:///plant.db"', 'url = "sqlite:///plant.db"\nevents_table = "evts"'
-        ),
-    )
-    r = subprocess.run(
-        [sys.executable, "-m", "monitor", "batches", "--config", str(bad)],
-        capture_output=True,
-        text=True,
-    )
-    assert r.returncode == 2 and "evts" in r.stderr and "historian.events_table" in r.stderr

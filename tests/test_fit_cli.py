@@ -9,8 +9,6 @@ from __future__ import annotations
 import hashlib
 import json
 import math
-import subprocess
-import sys
 import tomllib
 from datetime import datetime
 from pathlib import Path
@@ -20,10 +18,11 @@ import pytest
 import tomli_w
 
 from monitor import __version__
-from monitor.cli import main
+from monitor.cli.fit import FitProgress
 from monitor.config import load_config, load_kinetics
 from monitor.errors import KineticsError, UsageError
 from monitor.fitting import job as fitjob
+from tests.cli_runner import convmon
 
 REPO = Path(__file__).resolve().parents[1]
 LAB_EXAMPLE = REPO / "config" / "lab" / "dim7_lab_runs.csv"
@@ -44,18 +43,10 @@ FIT_KEYS = {
 }
 
 
-def convmon(*args, cwd=None):
-    """The real command in a fresh interpreter (stdout must be exactly the JSON)."""
-    return subprocess.run(
-        [sys.executable, "-m", "monitor", *args], capture_output=True, text=True, cwd=cwd
-    )
-
-
-def run_main(capsys, *args):
-    """The same command in this process (cheaper): returns (exit code, stdout, stderr)."""
-    code = main(list(args))
-    captured = capsys.readouterr()
-    return code, captured.out, captured.err
+def run_main(*args):
+    """``convmon ARGS`` through CliRunner: returns (exit code, stdout, stderr)."""
+    r = convmon(*args)
+    return r.exit_code, r.stdout, r.stderr
 
 
 def k_at(recipe_truth: dict, t_ref_k: float) -> float:
@@ -88,8 +79,8 @@ def small_fit(small_plant, tmp_path_factory):
 
 def test_fit_json_has_the_interface_keys(small_fit, small_plant):
     r, out = small_fit
-    assert r.returncode == 0, r.stderr
-    doc = json.loads(r.stdout)
+    assert r.exit_code == 0, r.stderr
+    doc = json.loads(r.stdout)  # stdout is exactly the JSON document
     assert set(doc) >= FIT_KEYS
     assert set(doc["stderr"]) == {"k_ref", "ea_j_per_mol", "order"}
     assert (doc["rate_law"], doc["order"]) == ("power", 2.0)  # the recipe's current law
@@ -130,17 +121,16 @@ def test_kinetics_file_and_provenance(small_fit):
         assert png.parent == out.parent and png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
 
 
-def test_never_overwrites_silently(small_fit, small_plant, capsys):
+def test_never_overwrites_silently(small_fit, small_plant):
     r, out = small_fit
     before = hashlib.sha256(out.read_bytes()).hexdigest()
     cfg = str(small_plant.config_path)
-    code, _, err = run_main(capsys, "fit", "--config", cfg, "--recipe", "DIM-7", "--out", str(out))
+    code, _, err = run_main("fit", "--config", cfg, "--recipe", "DIM-7", "--out", str(out))
     assert code == 2
     assert "dim7-v2.toml" in err and "--force" in err
     assert hashlib.sha256(out.read_bytes()).hexdigest() == before
     two = ",".join(b["batch"] for b in json.loads(r.stdout)["residuals_by_batch"][:2])
     code, text, err = run_main(
-        capsys,
         "fit",
         "--config",
         cfg,
@@ -165,31 +155,29 @@ def test_next_free_name(tmp_path):
     assert fitjob.next_free_name(tmp_path / "k-v2.toml") == tmp_path / "k-v3.toml"
 
 
-def test_fitted_file_loads_into_estimate(small_fit, small_plant, tmp_path, capsys):
+def test_fitted_file_loads_into_estimate(small_fit, small_plant, tmp_path):
     _, out = small_fit
     data = tomllib.loads(small_plant.config_path.read_text(encoding="utf-8"))
     data["recipes"]["DIM-7"]["kinetics"] = str(out)
     cfg_path = tmp_path / "refitted.toml"
     cfg_path.write_text(tomli_w.dumps(data), encoding="utf-8")
     batch = next(b["batch"] for b in small_plant.truth["batches"] if b["recipe"] == "DIM-7")
-    code, text, err = run_main(
-        capsys, "estimate", "--batch", batch, "--config", str(cfg_path), "--json"
-    )
+    code, text, err = run_main("estimate", "--batch", batch, "--config", str(cfg_path), "--json")
     assert code == 0, err
     est = json.loads(text)
     assert est["kinetics_version"] == load_kinetics(out).version
     assert 0.0 <= est["conversion"] <= 1.0
 
 
-def test_usage_errors_exit_2(small_plant, tmp_path, capsys):
+def test_usage_errors_exit_2(small_plant, tmp_path):
     cfg = str(small_plant.config_path)
     out = str(tmp_path / "a.toml")
     code, _, err = run_main(
-        capsys, "fit", "--config", cfg, "--recipe", "DIM-7", "--order", "loose", "--out", out
+        "fit", "--config", cfg, "--recipe", "DIM-7", "--order", "loose", "--out", out
     )
     assert code == 2 and "--order" in err
     code, _, err = run_main(
-        capsys, "fit", "--config", cfg, "--recipe", "DIM-7", "--batches", "NO-SUCH", "--out", out
+        "fit", "--config", cfg, "--recipe", "DIM-7", "--batches", "NO-SUCH", "--out", out
     )
     assert code == 2 and "NO-SUCH" in err
     running = [
@@ -199,7 +187,6 @@ def test_usage_errors_exit_2(small_plant, tmp_path, capsys):
     ]
     if running:
         code, _, err = run_main(
-            capsys,
             "fit",
             "--config",
             cfg,
@@ -212,18 +199,16 @@ def test_usage_errors_exit_2(small_plant, tmp_path, capsys):
         )
         assert code == 2 and "still running" in err
     code, _, err = run_main(
-        capsys, "fit", "--config", cfg, "--recipe", "DIM-7", "--law", "reversible", "--out", out
+        "fit", "--config", cfg, "--recipe", "DIM-7", "--law", "reversible", "--out", out
     )
     assert code == 2 and "not separable" in err
-    code, _, err = run_main(capsys, "fit", "--config", cfg, "--recipe", "NOPE", "--out", out)
+    code, _, err = run_main("fit", "--config", cfg, "--recipe", "NOPE", "--out", out)
     assert code == 2 and "NOPE" in err
     assert not (tmp_path / "a.toml").exists()
 
 
 def test_progress_bars_run(capsys):
-    from monitor.commands import _FitProgress
-
-    with _FitProgress() as p:
+    with FitProgress() as p:
         p.loading(1, 2, "B1")
         p.loading(2, 2, "B2")
         p.stage("fitting power")
@@ -287,14 +272,13 @@ LEVENSPIEL_3_1_CSV = """time_s,T_K,c_a
 """
 
 
-def test_lab_csv_levenspiel_3_1_free_order(tmp_path, capsys, monkeypatch):
+def test_lab_csv_levenspiel_3_1_free_order(tmp_path, monkeypatch):
     """Levenspiel 3rd ed., Example 3.1 (from memory) as a lab CSV: n 1.40-1.46, k ~ 0.005."""
     csv_path = tmp_path / "lev.csv"
     csv_path.write_text(LEVENSPIEL_3_1_CSV)
     monkeypatch.chdir(tmp_path)  # no convmon.toml here: a lab fit needs no configuration
     monkeypatch.delenv("CONVMON_CONFIG", raising=False)
     code, text, err = run_main(
-        capsys,
         "fit",
         "--recipe",
         "LAB",
@@ -317,7 +301,6 @@ def test_lab_csv_levenspiel_3_1_free_order(tmp_path, capsys, monkeypatch):
     assert doc["lab_methods"][0]["differential"]["order"] == pytest.approx(1.4, abs=0.1)
     assert load_kinetics(tmp_path / "lev.toml").order == pytest.approx(doc["order"])
     code, text, err = run_main(
-        capsys,
         "fit",
         "--recipe",
         "LAB",

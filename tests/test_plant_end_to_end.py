@@ -3,8 +3,6 @@
 from __future__ import annotations
 
 import json
-import subprocess
-import sys
 from datetime import datetime
 
 import pytest
@@ -12,15 +10,12 @@ import pytest
 from monitor.api import estimate_batch
 from monitor.config import load_config
 from monitor.service.cycle import Monitor
-
-
-def convmon(*args):
-    return subprocess.run([sys.executable, "-m", "monitor", *args], capture_output=True, text=True)
+from tests.cli_runner import convmon
 
 
 def test_batches_json_matches_the_generator(sample_plant):
     r = convmon("batches", "--config", str(sample_plant.config_path), "--json")
-    assert r.returncode == 0, r.stderr
+    assert r.exit_code == 0, r.stderr
     doc = json.loads(r.stdout)
     got = {b["batch"]: b for b in doc["batches"]}
     want = {b["batch"]: b for b in sample_plant.truth["batches"]}
@@ -54,7 +49,7 @@ def test_estimate_of_running_batches_against_truth(sample_plant):
 def test_estimate_json_keys_and_at(sample_plant):
     bid = next(b["batch"] for b in sample_plant.truth["batches"] if b["state"] == "complete")
     r = convmon("estimate", "--batch", bid, "--config", str(sample_plant.config_path), "--json")
-    assert r.returncode == 0, r.stderr
+    assert r.exit_code == 0, r.stderr
     doc = json.loads(r.stdout)
     for k in (
         "batch",
@@ -76,7 +71,7 @@ def test_estimate_json_keys_and_at(sample_plant):
     ):
         assert k in doc
     bad = convmon("estimate", "--batch", "NO-SUCH", "--config", str(sample_plant.config_path))
-    assert bad.returncode == 2 and "NO-SUCH" in bad.stderr
+    assert bad.exit_code == 2 and "NO-SUCH" in bad.stderr
 
 
 def test_run_once_twice_adds_nothing_the_second_time(sample_plant, tmp_path):

@@ -10,6 +10,7 @@ import sys
 import time
 
 from monitor.store import MIGRATIONS, Store, applied_migrations, migrate
+from tests.cli_runner import convmon
 
 
 def _config(sample_plant, tmp_path) -> str:
@@ -36,37 +37,20 @@ def test_run_polls_on_schedule_and_stops_on_sigterm(sample_plant, tmp_path):
         beat = None
         while time.time() < deadline:
             time.sleep(1.0)
-            r = subprocess.run(
-                [sys.executable, "-m", "monitor", "status", "--json", "--config", cfg],
-                capture_output=True,
-                text=True,
-                env=env,
-            )
-            if r.returncode == 0:
+            r = convmon("status", "--json", "--config", cfg)
+            if r.exit_code == 0:
                 beat = json.loads(r.stdout)["heartbeat"]
                 if beat["cycles"] >= 2:
                     break
         assert beat and beat["cycles"] >= 2 and beat["last_good_cycle"]
-        second = subprocess.run(
-            [sys.executable, "-m", "monitor", "run", "--once", "--config", cfg],
-            capture_output=True,
-            text=True,
-            env=env,
-        )
-        assert second.returncode == 3 and "already" in second.stderr
+        second = convmon("run", "--once", "--config", cfg, env={"CONVMON_LOCK_DIR": str(tmp_path)})
+        assert second.exit_code == 3 and "already" in second.stderr
         proc.send_signal(signal.SIGTERM)
         assert proc.wait(timeout=30) == 0
     finally:
         if proc.poll() is None:
             proc.kill()
-    doc = json.loads(
-        subprocess.run(
-            [sys.executable, "-m", "monitor", "status", "--json", "--config", cfg],
-            capture_output=True,
-            text=True,
-            env=env,
-        ).stdout
-    )
+    doc = json.loads(convmon("status", "--json", "--config", cfg).stdout)
     running = {b["batch"] for b in sample_plant.truth["batches"] if b["state"] == "running"}
     assert {r["batch"] for r in doc["status"]} == running
     for r in doc["status"]:
@@ -104,23 +88,8 @@ def test_watch_prints_plain_lines_off_a_terminal(sample_plant, tmp_path):
     from monitor.service.cycle import Monitor
 
     Monitor(load_config(cfg)).cycle()
-    r = subprocess.run(
-        [
-            sys.executable,
-            "-m",
-            "monitor",
-            "watch",
-            "--config",
-            cfg,
-            "--count",
-            "2",
-            "--interval",
-            "0.1",
-        ],
-        capture_output=True,
-        text=True,
-    )
-    assert r.returncode == 0, r.stderr
+    r = convmon("watch", "--config", cfg, "--count", "2", "--interval", "0.1")
+    assert r.exit_code == 0, r.stderr
     lines = r.stdout.strip().splitlines()
     running = [b["batch"] for b in sample_plant.truth["batches"] if b["state"] == "running"]
     assert len(lines) == 2 * (1 + len(running))
@@ -168,11 +137,7 @@ def test_alerts_list_and_ack(sample_plant, tmp_path):
     mon.run_cycle_safely()
 
     def cli(*args):
-        return subprocess.run(
-            [sys.executable, "-m", "monitor", "alerts", *args, "--config", cfg_path],
-            capture_output=True,
-            text=True,
-        )
+        return convmon("alerts", *args, "--config", cfg_path)
 
     doc = json.loads(cli("--open", "--json").stdout)
     keys = {
@@ -189,11 +154,11 @@ def test_alerts_list_and_ack(sample_plant, tmp_path):
     assert doc["alerts"] and all(keys <= set(a) for a in doc["alerts"])
     first = doc["alerts"][0]
     r = cli("ack", str(first["id"]), "--by", "shift-lead")
-    assert r.returncode == 0, r.stderr
+    assert r.exit_code == 0, r.stderr
     again = {a["id"]: a for a in json.loads(cli("--open", "--json").stdout)["alerts"]}
     assert again[first["id"]]["acked_by"] == "shift-lead"
     assert again[first["id"]]["state"] == "acked"  # still active: its condition holds
     mon.run_cycle_safely()  # an acknowledged alert is not raised a second time
     assert len(json.loads(cli("--json").stdout)["alerts"]) == len(doc["alerts"])
-    assert cli("ack", "99999", "--by", "x").returncode == 2
-    assert cli("ack", str(first["id"])).returncode == 2  # --by is required
+    assert cli("ack", "99999", "--by", "x").exit_code == 2
+    assert cli("ack", str(first["id"])).exit_code == 2  # --by is required

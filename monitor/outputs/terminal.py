@@ -1,4 +1,5 @@
-"""Terminal text for people: the status table, an estimate's summary."""
+"""Terminal text for people: the batch list, the status table and its plain lines, the
+alert list, an estimate's summary."""
 
 from __future__ import annotations
 
@@ -69,6 +70,53 @@ def status_table(doc: dict, zone: str, now_s: float | None = None) -> Table:
             duration(max(ref - at, 0.0)),
         )
     return table
+
+
+def status_lines(doc: dict, zone: str, now_s: float) -> list[str]:
+    """The ``status`` document as plain lines (for a pipe: no table, no control codes)."""
+    beat = doc.get("heartbeat") or {}
+    lines = [f"{local(now_s, zone)} last good cycle {beat.get('last_good_cycle')}"]
+    for r in doc["status"]:
+        age = (now_s - from_iso(r["at"])) / 60
+        lines.append(
+            f"{r['unit']} {r['batch']} {r['recipe']} X={r['conversion']:.3f}"
+            f"±{r['conversion_sd']:.3f} P50={r['predicted_end']} "
+            f"P10={r['predicted_end_p10']} P90={r['predicted_end_p90']} "
+            f"alerts={','.join(r['alerts']) or '-'} data_age_min={age:.0f}"
+        )
+    return lines
+
+
+def batches_table(doc: dict, zone: str) -> Table:
+    """The ``batches`` document as a table, times in plant local time."""
+    table = Table(
+        title=f"{len(doc['batches'])} batches",
+        caption=f"times in {zone}; sample counts are good samples in the batch window",
+    )
+    for col in ("batch", "unit", "recipe", "start", "end", "state", "temperatures", "assays"):
+        table.add_column(col, justify="right" if col in ("temperatures", "assays") else "left")
+    for d in doc["batches"]:
+        table.add_row(
+            d["batch"],
+            d["unit"],
+            d["recipe"],
+            local(from_iso(d["start"]), zone),
+            local(from_iso(d["end"]), zone),
+            d["state"],
+            str(d["n_temperature"]),
+            str(d["n_assays"]),
+        )
+    return table
+
+
+def alerts_text(doc: dict) -> str:
+    """The ``alerts`` document, one line per alert."""
+    lines = [
+        f"{d['id']:>5} {d['state']:<8} {d['severity']:<8} {d['batch']:<12} {d['kind']:<20} "
+        f"{d['raised_at']}  {d['message']}"
+        for d in doc["alerts"]
+    ]
+    return "\n".join(lines) or "no alerts"
 
 
 def console(stream=None):
