@@ -9,6 +9,7 @@ with pint.
 from __future__ import annotations
 
 import re
+import tokenize
 from functools import lru_cache
 
 import numpy as np
@@ -97,7 +98,16 @@ def parse_quantity(text: str, si_unit: str, *, path=None, key: str | None = None
         # magnitude and unit apart, so offset units such as degC are accepted
         q = ureg.Quantity(float(m.group(1)), m.group(2).strip())
         return float(q.to(si_unit).magnitude)
-    except (pint.errors.PintError, ValueError, TypeError, AttributeError) as exc:
+    except (
+        pint.errors.PintError,
+        ValueError,
+        TypeError,
+        AttributeError,
+        ArithmeticError,  # "1 K/0", "1 kg**1e9"
+        LookupError,
+        tokenize.TokenError,  # "1 (": pint tokenizes unit text as Python
+        SyntaxError,
+    ) as exc:
         raise ConfigError(
             f"cannot read {text!r} as a quantity in {si_unit}: {exc}", path=path, key=key
         ) from None
