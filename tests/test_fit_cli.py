@@ -273,10 +273,18 @@ LEVENSPIEL_3_1_CSV = """time_s,T_K,c_a
 
 
 def test_lab_csv_levenspiel_3_1_free_order(tmp_path, monkeypatch):
-    """Levenspiel 3rd ed., Example 3.1 (from memory) as a lab CSV: n 1.40-1.46, k ~ 0.005."""
+    """Levenspiel 3rd ed., Example 3.1 (from memory) as a lab CSV: n 1.40-1.46, k ~ 0.005.
+
+    One temperature cannot identify Ea: the prior kinetics of the configuration's LAB
+    recipe keep it (without a prior no file is written: the next test)."""
     csv_path = tmp_path / "lev.csv"
     csv_path.write_text(LEVENSPIEL_3_1_CSV)
-    monkeypatch.chdir(tmp_path)  # no convmon.toml here: a lab fit needs no configuration
+    prior = {"rate_law": "power", "order": 1.5, "k_ref": 5e-3, "t_ref_k": 298.15}
+    (tmp_path / "prior.toml").write_text(tomli_w.dumps({**prior, "ea_j_per_mol": 50e3}))
+    (tmp_path / "convmon.toml").write_text(
+        '[historian]\nurl = "sqlite:///plant.db"\n[recipes.LAB]\nkinetics = "prior.toml"\n'
+    )
+    monkeypatch.chdir(tmp_path)  # the default ./convmon.toml names the prior
     monkeypatch.delenv("CONVMON_CONFIG", raising=False)
     code, text, err = run_main(
         "fit",
@@ -299,7 +307,9 @@ def test_lab_csv_levenspiel_3_1_free_order(tmp_path, monkeypatch):
     assert doc["ea_j_per_mol"] is None  # one temperature: said, not printed
     assert any("Ea cannot be identified" in w for w in doc["warnings"])
     assert doc["lab_methods"][0]["differential"]["order"] == pytest.approx(1.4, abs=0.1)
-    assert load_kinetics(tmp_path / "lev.toml").order == pytest.approx(doc["order"])
+    written = load_kinetics(tmp_path / "lev.toml")
+    assert written.order == pytest.approx(doc["order"])
+    assert written.ea_j_per_mol == 50e3 and "ea_j_per_mol" in written.provenance["fixed"]
     code, text, err = run_main(
         "fit",
         "--recipe",
@@ -315,6 +325,19 @@ def test_lab_csv_levenspiel_3_1_free_order(tmp_path, monkeypatch):
     )
     assert code == 0, err
     assert "Ea           not identifiable from these data" in text
+
+
+def test_lab_csv_at_one_temperature_without_a_prior_writes_no_file(tmp_path, monkeypatch):
+    """Issue #10: an Ea the data cannot identify is never written as 0 with sd 0."""
+    csv_path = tmp_path / "lev.csv"
+    csv_path.write_text(LEVENSPIEL_3_1_CSV)
+    monkeypatch.chdir(tmp_path)  # no convmon.toml here: a lab fit needs no configuration
+    monkeypatch.delenv("CONVMON_CONFIG", raising=False)
+    out = tmp_path / "lev.toml"
+    args = ("fit", "--recipe", "LAB", "--lab-csv", str(csv_path), "--order", "free")
+    code, text, err = run_main(*args, "--out", str(out))
+    assert code == 2 and "[ea_j_per_mol] not written" in err and str(out) in err, err
+    assert not out.exists()
 
 
 def test_lab_csv_example_at_three_temperatures(tmp_path):
