@@ -43,7 +43,7 @@ from .fields import (
     in_range,
 )
 from .plant import RecipeConfig, UnitConfig
-from .reading import located
+from .reading import located, shown
 from .urls import same_database, without_password
 
 
@@ -196,7 +196,7 @@ class Config(BaseModel):
         seen: set[str] = set()
         for i, u in enumerate(units):
             if u.name in seen:
-                raise located((i, "name"), f"unit {u.name!r} is configured twice", u.name)
+                raise located((i, "name"), f"unit {shown(u.name)} is configured twice", u.name)
             seen.add(u.name)
         return units
 
