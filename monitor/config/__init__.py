@@ -2,7 +2,8 @@
 
 from .kinetics_file import load_kinetics, write_kinetics
 from .load import DEFAULT_CONFIG, ENV_VAR, config_from_dict, load_config
-from .model import (
+from .plant import RecipeConfig, SafetyConfig, UnitConfig
+from .tables import (
     Config,
     EstimatorConfig,
     EventsColumns,
@@ -13,7 +14,6 @@ from .model import (
     StoreConfig,
     WritebackConfig,
 )
-from .plant import RecipeConfig, SafetyConfig, UnitConfig
 from .urls import expand_env
 
 __all__ = [

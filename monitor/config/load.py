@@ -13,8 +13,8 @@ from pathlib import Path
 from pydantic import ValidationError
 
 from ..errors import ConfigError
-from .model import Config
 from .reading import raise_first_problem, read_toml
+from .tables import Config
 
 ENV_VAR = "CONVMON_CONFIG"
 DEFAULT_CONFIG = "convmon.toml"

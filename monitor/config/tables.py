@@ -4,7 +4,8 @@ Each model holds its table's keys with their one set of defaults and constraints
 an unknown key is refused (``extra="forbid"``). `monitor.config.load` validates a
 file with its folder in the validation context (relative paths resolve against
 it); Python code may build a model directly by attribute name, values in SI.
-The units and recipes are in `monitor.config.plant`.
+The units and recipes are in `monitor.config.plant`; `monitor.config.models` builds
+the batch layer's models from them.
 """
 
 from __future__ import annotations
