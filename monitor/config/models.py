@@ -6,7 +6,7 @@ from ..batch.kinetics import Kinetics
 from ..batch.state import RecipeModel
 from ..errors import ConfigError
 from .kinetics_file import load_kinetics
-from .load import Config
+from .tables import Config
 
 
 def recipe_model(cfg: Config, recipe: str, kinetics: Kinetics | None = None) -> RecipeModel:
