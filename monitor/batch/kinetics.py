@@ -8,7 +8,7 @@ forecast's Monte Carlo.
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass, field
+from dataclasses import dataclass, field
 from functools import cached_property
 
 import numpy as np
@@ -84,19 +84,65 @@ class Kinetics:
         return corr * np.outer(sd, sd)
 
 
+#: The law-specific keys of each rate law (the rest are common to all laws).
+LAW_KEYS = {
+    "power": ("order",),
+    "bimolecular": ("theta_b", "b"),
+    "autocatalytic": ("theta_r",),
+    "reversible": ("theta_r", "k_eq_ref", "dh_rxn_j_per_mol"),
+}
+COMMON_KEYS = ("rate_law", "k_ref", "t_ref_k", "ea_j_per_mol", "activity_sd")
+
+
 def kinetics_to_dict(kin: Kinetics) -> dict:
-    """The file form of a kinetics object (None and empty entries left out)."""
-    d = {k: v for k, v in asdict(kin).items() if v is not None}
-    for k in ("source", "digest"):
-        d.pop(k)
-    d["stderr"] = {
-        "k_ref": d.pop("stderr_k_ref"),
-        "ea_j_per_mol": d.pop("stderr_ea_j_per_mol"),
-        "order": d.pop("stderr_order"),
-    }
-    corr = d.pop("correlation")
-    if corr:
-        d["correlation"] = [list(r) for r in corr]
-    if not d.get("provenance"):
-        d.pop("provenance", None)
+    """The file form of a kinetics object: only the keys its law uses.
+
+    Common keys, then the law's own (`LAW_KEYS`); ``epsilon`` only for a variable
+    volume (non-zero); ``[stderr]`` only for what was estimated (non-zero; the
+    order's only for the power law); ``correlation`` and ``[provenance]`` when set.
+    """
+    own = {k: getattr(kin, k) for k in LAW_KEYS[kin.rate_law] if getattr(kin, k) is not None}
+    d = {"rate_law": kin.rate_law}
+    if "order" in own:  # the power law's order first, as people read it
+        d["order"] = own.pop("order")
+    d.update({k: getattr(kin, k) for k in COMMON_KEYS if k != "rate_law"})
+    d.update(own)
+    if kin.epsilon:
+        d["epsilon"] = kin.epsilon
+    stderr = {"k_ref": kin.stderr_k_ref, "ea_j_per_mol": kin.stderr_ea_j_per_mol}
+    if kin.rate_law == "power":
+        stderr["order"] = kin.stderr_order
+    stderr = {k: v for k, v in stderr.items() if v}
+    if stderr:
+        d["stderr"] = stderr
+    if kin.correlation:
+        d["correlation"] = [list(r) for r in kin.correlation]
+    if kin.provenance:
+        d["provenance"] = dict(kin.provenance)
     return d
+
+
+def k_ref_unit(rate_law: str, order: float = 1.0) -> str:
+    """The unit of ``k_ref`` for a law, with times in s and concentrations in mol/L.
+
+    ``s⁻¹·(L/mol)^(n−1)`` for the power law of order n (``s⁻¹`` at n = 1,
+    ``L/(mol·s)`` at n = 2); ``L/(mol·s)`` for the bimolecular and autocatalytic
+    laws; ``s⁻¹`` for the reversible law.
+
+    >>> k_ref_unit("power", 1.5)
+    's⁻¹·(L/mol)^0.5'
+    """
+    if rate_law in ("bimolecular", "autocatalytic"):
+        return "L/(mol·s)"
+    if rate_law == "reversible":
+        return "s⁻¹"
+    m = float(order) - 1.0
+    if m == 0:
+        return "s⁻¹"
+    if m == 1:
+        return "L/(mol·s)"
+    if m == -1:
+        return "mol/(L·s)"
+    if m > 0:
+        return f"s⁻¹·(L/mol)^{m:.4g}"
+    return f"s⁻¹·(mol/L)^{-m:.4g}"

@@ -25,7 +25,9 @@ import time
 import numpy as np
 from scipy.integrate import solve_ivp
 
-from monitor.physics.plant_fit.fit import FitSeries, fit_batches
+from monitor.physics.plant_fit import FitSeries, fit_batches
+from monitor.physics.plant_fit.model import Model, Spec
+from monitor.physics.plant_fit.problem import Problem
 
 R = 8.314462618
 EA, K_REF, T_REF, ORDER = 70e3, 5e-4, 343.15, 2.0
@@ -105,17 +107,15 @@ def main() -> dict:
     wall = time.perf_counter() - t0
 
     # per-evaluation cost of the Θ model at the solution (residuals + analytic Jacobian)
-    from monitor.physics.plant_fit.fit import _Model, _Problem, _Spec
-
-    prob = _Problem(series, [])
-    spec = _Spec("power", {}, ["order"], True, True, fit.t_ref_k)
-    model = _Model(prob, spec, np.ones(len(prob.obs), bool))
+    prob = Problem(series, [])
+    spec = Spec("power", {}, ["order"], True, True, fit.t_ref_k)
+    model = Model(prob, spec, np.ones(len(prob.obs), bool))
     phi = np.log([fit.activity[s.name] for s in series])
     x = np.r_[math.log(fit.k_ref), fit.ea_j_per_mol / 1e3, fit.order, phi]
     reps = 20
     t0 = time.perf_counter()
     for i in range(reps):
-        model._cache_x = None
+        model.invalidate()
         model.fun(x + 1e-9 * i)
         model.jac(x + 1e-9 * i)
     theta_eval = (time.perf_counter() - t0) / reps
@@ -127,7 +127,7 @@ def main() -> dict:
             series, math.log(fit.k_ref), fit.ea_j_per_mol, fit.order, phi, fit.t_ref_k
         )
     ode_eval = (time.perf_counter() - t0) / ode_reps
-    model._cache_x = None
+    model.invalidate()
     r_theta = model.fun(x)[: len(r_ode)]
     agreement = float(np.max(np.abs(r_ode - r_theta)))  # in assay sigmas
 
