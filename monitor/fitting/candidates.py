@@ -208,16 +208,19 @@ def _with_deltas(cands: list[Candidate]) -> list[Candidate]:
     return out
 
 
-def run_fits(
-    runner: FitRunner, choice: LawChoice, *, outlier_sigma: float | None
-) -> tuple[PlantFit, list[Candidate]]:
-    """The chosen fit, then every candidate law on the same assays (for AIC/BIC)."""
+def fit_chosen(runner: FitRunner, choice: LawChoice, *, outlier_sigma: float | None) -> PlantFit:
+    """The chosen law's fit (outliers beyond ``outlier_sigma`` left out and listed)."""
     law, order = choice.rate_law, choice.order
     runner.stage(f"fitting {law}" + (f", order {order}" if law == "power" else ""))
     try:
-        main = runner.fit(law, order, outlier_sigma=outlier_sigma)
+        return runner.fit(law, order, outlier_sigma=outlier_sigma)
     except ValueError as exc:
         raise DataQualityError(f"the fit failed: {exc}") from None
+
+
+def compare_candidates(runner: FitRunner, choice: LawChoice, main: PlantFit) -> list[Candidate]:
+    """Every candidate law on the chosen fit's assays, at its activity spread (AIC, BIC)."""
+    law, order = choice.rate_law, choice.order
     mask = excluded_mask(main)
     cands = []
     for law_c, order_c in dict.fromkeys(candidate_laws(runner.prior) + [(law, order)]):
@@ -243,7 +246,7 @@ def run_fits(
             cands.append(failed)
             continue
         cands.append(_candidate(fit, law_c, order_c, chosen=False))
-    return main, _with_deltas(cands)
+    return _with_deltas(cands)
 
 
 __all__ = [
@@ -252,7 +255,8 @@ __all__ = [
     "LawChoice",
     "candidate_laws",
     "choose_law",
+    "compare_candidates",
+    "fit_chosen",
     "law_params",
     "parse_order",
-    "run_fits",
 ]

@@ -1,10 +1,11 @@
 """Fit kinetics from a recipe's plant history (`fit_recipe`) or from lab runs (`fit_lab_csv`).
 
-Each job reads its data (`.sources`), fits the chosen law and the candidates
-(`.candidates`), refuses to write a value the data did not estimate and no prior
-supplies (`refuse_unestimated`), writes the kinetics file with its ``[provenance]``
-and the plots beside it (`.plots`), and returns the ``fit`` document of INTERFACE.md
-(`.record`). It prints nothing; progress goes to the caller's `FitProgress`.
+Each job reads its data (`.sources`) and fits the chosen law (`.candidates`). When
+that fit holds a value the data did not estimate and no prior supplies, it refuses
+before anything is written (`refuse_unestimated`); else it compares the candidate
+laws, writes the kinetics file with its ``[provenance]`` and the plots beside it
+(`.plots`), and returns the ``fit`` document of INTERFACE.md (`.record`). It prints
+nothing; progress goes to the caller's `FitProgress`.
 """
 
 from __future__ import annotations
@@ -22,7 +23,7 @@ from ..config import Config, load_kinetics, write_kinetics
 from ..errors import DataQualityError, KineticsError
 from ..physics.lab_methods import fit_arrhenius, fit_differential, fit_integral
 from ..physics.plant_fit import FitSeries, FixedSource, PlantFit, WarningKind, of_kind
-from .candidates import FitRunner, choose_law, law_params, run_fits
+from .candidates import FitRunner, choose_law, compare_candidates, fit_chosen, law_params
 from .plots import ArrheniusPoint, plant_arrhenius_points, write_plots
 from .progress import FitProgress
 from .record import JobContext, fit_document, kinetics_of, lab_activity_sd_warning, provenance
@@ -131,8 +132,7 @@ def _finish(
     force: bool,
     clock: Callable[[], datetime] | None,
 ) -> dict:
-    """Refuse or write: the kinetics file, the plots, and the document."""
-    refuse_unestimated(fit, out)
+    """Write the kinetics file (its provenance), the plots, and return the document."""
     fitted_at = (
         (clock() if clock else datetime.now(UTC)).astimezone(UTC).isoformat(timespec="seconds")
     )
@@ -187,7 +187,9 @@ def fit_recipe(
     if not series:
         raise DataQualityError(f"recipe {recipe}: no batch with temperatures and assays")
     runner = FitRunner(series, prior, rc.kinetics, True, True, progress)
-    fit, cands = run_fits(runner, choice, outlier_sigma=PLANT_OUTLIER_SIGMA)
+    fit = fit_chosen(runner, choice, outlier_sigma=PLANT_OUTLIER_SIGMA)
+    refuse_unestimated(fit, out)  # before the candidates: nothing more to do then
+    cands = compare_candidates(runner, choice, fit)
     base = Path(cfg.path).parent if getattr(cfg, "path", None) else None
     ctx = JobContext(
         choice=choice,
@@ -275,7 +277,9 @@ def fit_lab_csv(
         law = prior.rate_law if prior is not None else "power"
     choice = choose_law(law, order, prior, prior_path)
     runner = FitRunner(series, prior, prior_path, False, sd_known, progress)
-    fit, cands = run_fits(runner, choice, outlier_sigma=None)
+    fit = fit_chosen(runner, choice, outlier_sigma=None)
+    refuse_unestimated(fit, out)
+    cands = compare_candidates(runner, choice, fit)
     methods, arr = lab_methods(series, fit, choice.order)
     points = [
         ArrheniusPoint(p["run"], p["T_K"], p["k"], p["stderr_k"] / p["k"] if p["k"] else None)
