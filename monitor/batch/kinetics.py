@@ -98,8 +98,9 @@ def kinetics_to_dict(kin: Kinetics) -> dict:
     """The file form of a kinetics object: only the keys its law uses.
 
     Common keys, then the law's own (`LAW_KEYS`); ``epsilon`` only for a variable
-    volume (non-zero); ``[stderr]`` only for what was estimated (non-zero; the
-    order's only for the power law); ``correlation`` and ``[provenance]`` when set.
+    volume (non-zero); ``[stderr]`` only for what was estimated (non-zero: a fit
+    estimates the order's only for the power law); ``correlation`` and
+    ``[provenance]`` when set.
     """
     own = {k: getattr(kin, k) for k in LAW_KEYS[kin.rate_law] if getattr(kin, k) is not None}
     d = {"rate_law": kin.rate_law}
@@ -109,9 +110,11 @@ def kinetics_to_dict(kin: Kinetics) -> dict:
     d.update(own)
     if kin.epsilon:
         d["epsilon"] = kin.epsilon
-    stderr = {"k_ref": kin.stderr_k_ref, "ea_j_per_mol": kin.stderr_ea_j_per_mol}
-    if kin.rate_law == "power":
-        stderr["order"] = kin.stderr_order
+    stderr = {
+        "k_ref": kin.stderr_k_ref,
+        "ea_j_per_mol": kin.stderr_ea_j_per_mol,
+        "order": kin.stderr_order,
+    }
     stderr = {k: v for k, v in stderr.items() if v}
     if stderr:
         d["stderr"] = stderr
