@@ -73,11 +73,18 @@ def _fit_kinetics(out: Path, cfg_hist, before_s: float, log) -> dict[str, Path]:
         se = res.get("stderr", {})
         log(
             f"  {recipe}: {res['rate_law']} order {res['order']:.2f}, "
-            f"Ea {res['ea_j_per_mol'] / 1e3:.1f} ± {(se.get('ea_j_per_mol') or 0) / 1e3:.1f} "
-            f"kJ/mol, k_ref {res['k_ref']:.3g} at {res['t_ref_k']:.1f} K, from {len(ids)} "
+            f"Ea {_kj(res['ea_j_per_mol'], se.get('ea_j_per_mol'))}, "
+            f"k_ref {res['k_ref']:.3g} at {res['t_ref_k']:.1f} K, from {len(ids)} "
             f"batches in {time.perf_counter() - t0:.1f} s -> {path}"
         )
     return found
+
+
+def _kj(value: float | None, stderr: float | None) -> str:
+    """Ea for the demo's log: "65.2 ± 0.4 kJ/mol", or why there is no estimate."""
+    if value is None:
+        return "not estimated (held at the prior)"
+    return f"{value / 1e3:.1f} ± {(stderr or 0.0) / 1e3:.1f} kJ/mol"
 
 
 def run_demo(out_dir: str | Path = "var/demo", *, fast: bool = False, stream=None) -> dict:

@@ -112,7 +112,7 @@ def fit(
     as_json: bool,
 ) -> None:
     """Fit kinetics from the recipe's history (or a lab CSV) and write a new kinetics file
-    with its parity and residual plots; never overwrites one without --force."""
+    with its parity, residual and Arrhenius plots; never overwrites one without --force."""
     progress = FitProgress() if sys.stderr.isatty() else None
     options = {"law": law, "order": order, "force": force, "progress": progress}
     with progress or contextlib.nullcontext():
