@@ -113,7 +113,7 @@ def run_demo(out_dir: str | Path = "var/demo", *, fast: bool = False, stream=Non
     tags = [u.temperature_tag for u in cfg.units]
     replay = Replay(SAMPLE_DB, live_db, tags)
     clock = {"t": replay_start}
-    replay.advance_to(replay_start)
+    replay.start(replay_start)
     monitor = Monitor(cfg, clock=lambda: clock["t"])
     step_s = 3240.0 if not fast else 1800.0  # 54 plant-minutes a poll: 60 polls for 54 h
     ticks = int(span_h * 3600 / step_s)
@@ -154,7 +154,7 @@ def run_demo(out_dir: str | Path = "var/demo", *, fast: bool = False, stream=Non
 
 
 def _summary(monitor, history, out, kinetics, wall) -> dict:
-    snap = monitor.store.snapshot()
+    counts = monitor.store.row_counts()
     lines = []
     for bid, pts in history.items():
         pts = [p for p in pts if p[1] and p[2] and p[3]]
@@ -170,9 +170,9 @@ def _summary(monitor, history, out, kinetics, wall) -> dict:
     shutil.copyfile(out / "convmon.db", out / "convmon-final.db")
     return {
         "lines": lines,
-        "estimates": len(snap["estimates"]),
-        "alerts": len(snap["alerts"]),
-        "batches": len(snap["batches"]),
+        "estimates": counts["estimates"],
+        "alerts": counts["alerts"],
+        "batches": counts["batches"],
         "wall_s": wall,
         "kinetics": {k: str(v) for k, v in kinetics.items()},
     }

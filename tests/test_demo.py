@@ -27,11 +27,11 @@ def test_demo_runs_the_whole_job(tmp_path):
     )
     store = Store(f"sqlite:///{out / 'convmon.db'}")
     try:
-        snap = store.snapshot()
+        counts = store.row_counts()
         with store.engine.connect() as conn:
             sources = {r.source for r in conn.execute(select(kinetics_versions))}
     finally:
         store.close()
-    assert snap["estimates"] and snap["batches"]
+    assert counts["estimates"] and counts["batches"]
     assert sources and sources <= {str(p) for p in fitted}  # the fitted files, not the shipped
     assert "P50" in r.stdout and "band" in r.stdout

@@ -9,7 +9,6 @@ import subprocess
 import sys
 import time
 
-from monitor.store import MIGRATIONS, Store, applied_migrations, migrate
 from tests.cli_runner import convmon
 
 
@@ -55,31 +54,6 @@ def test_run_polls_on_schedule_and_stops_on_sigterm(sample_plant, tmp_path):
     assert {r["batch"] for r in doc["status"]} == running
     for r in doc["status"]:
         assert isinstance(r["alerts"], list)
-
-
-def test_store_migrations_upgrade_and_refuse_newer(tmp_path):
-    from sqlalchemy import create_engine, insert
-
-    from monitor.errors import StoreError
-    from monitor.store import migrations_table
-
-    url = f"sqlite:///{tmp_path / 's.db'}"
-    engine = create_engine(url)
-    # an older store: only the first migration applied
-    with engine.begin() as conn:
-        migrations_table.create(conn)
-        MIGRATIONS[0][1](conn)
-        conn.execute(insert(migrations_table).values(name=MIGRATIONS[0][0], applied_at="x"))
-    assert migrate(engine) == [name for name, _ in MIGRATIONS[1:]]
-    assert applied_migrations(engine) == [name for name, _ in MIGRATIONS]
-    with engine.begin() as conn:
-        conn.execute(insert(migrations_table).values(name="9999_from_the_future", applied_at="x"))
-    try:
-        Store(url)
-    except StoreError as exc:
-        assert "newer convmon" in str(exc) and exc.exit_code == 3
-    else:
-        raise AssertionError("a newer store was opened")
 
 
 def test_watch_prints_plain_lines_off_a_terminal(sample_plant, tmp_path):

@@ -1,10 +1,11 @@
 """The poll cycle on a PostgreSQL historian whose connections are cut, and on bad live rows.
 
 A 3-day sample plant is copied into uniquely named PostgreSQL tables (SQLAlchemy Core,
-dropped after) and replayed into them tick by tick: each tick inserts the rows up to the
-plant time in ``seq`` order, as `sample_historian.replay.Replay` does for SQLite, then the monitor
-polls. The monitor's URL sets ``application_name=convmon_outage_<uuid>``; a separate
-connection ends its backends with ``pg_terminate_backend``:
+dropped after) and replayed into them tick by tick by `sample_historian.replay.Replay`
+(the demo's replay, here with room in ``seq`` for injected rows): each tick inserts the
+rows up to the plant time in ``seq`` order, then the monitor polls. The monitor's URL
+sets ``application_name=convmon_outage_<uuid>``; a separate connection ends its
+backends with ``pg_terminate_backend``:
 
 * before a query (a listener on the reader's engine fires just before the statement is
   sent), so the statement meets a dead connection and `with_retry` retries it;
@@ -13,13 +14,14 @@ connection ends its backends with ``pg_terminate_backend``:
   nothing, and the next cycle at the same plant time recovers;
 * while the connection idles in the pool between cycles (pre-ping replaces it).
 
-A clean monitor replays the same ticks on its own copy. The stores must agree (keys
-exactly, floats within 1e-9 relative) and each running batch must hold every good
+A clean monitor replays the same ticks on its own copy. The stores must agree on every
+column of every table (`tests.store_compare`: keys exactly, floats within 1e-9 relative)
+and each running batch must hold every good
 sample the replay delivered, counted straight from the source file. A second run feeds
 bad rows live (NaN, NULL, infinity, -999, bad quality codes, duplicates, the timestamp
 text 'not-a-time', an unknown tag, broken events): every cycle succeeds, the exclusions
 are counted exactly, and the store equals the clean one but for a -999 assay, which is
-reported as an assay mismatch. Last, the store on MariaDB keeps epoch seconds exactly.
+reported as an assay mismatch. (The store on MariaDB is tested in tests/test_store.py.)
 
 Run with ``-s`` to see the figures.
 """
@@ -30,7 +32,6 @@ import json
 import logging
 import math
 import re
-import sqlite3
 import statistics
 import time
 import tomllib
@@ -40,15 +41,16 @@ from dataclasses import dataclass, field
 from datetime import datetime
 
 import pytest
-from sqlalchemy import create_engine, event, select, text
+from sqlalchemy import create_engine, event, text
 
 from monitor.config import config_from_dict
 from monitor.historian.model import Batch
 from monitor.service.cycle import Monitor
-from monitor.store import alerts, batches, estimates
 from monitor.timefmt import to_datetime
+from sample_historian.replay import Replay
 from tests.fixtures_db import POSTGRES_URL, make_export, require_server
 from tests.fixtures_plant import PLANT_CONFIG, build_plant
+from tests.store_compare import REL, compare_stores, read_store, row_counts
 
 PLANT_DAYS = 3
 REPLAY_START = "2026-10-07T05:30:00+00:00"  # three batches start and end in the replay
@@ -59,7 +61,6 @@ SEQ_SCALE = 32  # source seq n becomes n * 32: room for injected rows between ti
 RETRIES = 2
 BACKOFF_S = (0.5, 1.0)  # with_retry's default backoff for retries 1 and 2
 FETCH_ROWS = 100  # small chunks: a poll streams several, so a read can be cut midway
-REL = 1e-9
 GOOD_Q = 0
 BAD_Q, UNCERTAIN_Q = 0x80000000, 0x40000000  # OPC UA status codes Bad, Uncertain
 LIMITS_C = (-10.0, 200.0)  # config/sample_plant.toml temperature_limits [degC]
@@ -73,103 +74,39 @@ def _epoch(iso: str) -> float:
     return datetime.fromisoformat(iso).timestamp()
 
 
-# ------------------------------------------------------------------ replay
-class PgReplay:
-    """Copies the plant's SQLite export into a PostgreSQL export in seq order, per tick."""
+# ------------------------------------------------------------------ source counts
+def _expected_counts(replay: Replay, t_s: float, unit_tags: dict) -> dict:
+    """Per running batch: good distinct temperature times and assay times delivered so far.
 
-    def __init__(self, src_path, export, temperature_tags):
-        self.src = sqlite3.connect(f"file:{src_path}?mode=ro", uri=True)
-        self.export = export
-        self.tags = temperature_tags
-        self.seq = -1  # last source seq copied
-        self.event_seq = -1
-        self.extra_seq = 0  # injected rows so far
-        self.extra_event_seq = 10_000
-
-    def cut(self, t_s: float) -> int:
-        """Last source seq of a temperature row at or before ``t_s`` (where a tick ends)."""
-        marks = ",".join("?" * len(self.tags))
-        row = self.src.execute(
-            f"SELECT MAX(seq) FROM tag_samples WHERE tag IN ({marks}) "  # noqa: S608 - placeholders only
-            "AND ts <= ?",
-            [*self.tags, _iso(t_s)],
-        ).fetchone()
-        return -1 if row[0] is None else int(row[0])
-
-    def start(self, t_s: float) -> int:
-        first = self.src.execute(
-            "SELECT MIN(seq) FROM tag_samples WHERE ts >= ?", (_iso(t_s - HISTORY_S),)
+    Counted in SQL on the replay's source, independently of the reader: quality Good, a
+    value inside the unit's limits (assays: not NULL), at or after the batch start.
+    """
+    src, iso = replay.src, _iso(t_s)
+    ends = {
+        r[0]
+        for r in src.execute(
+            "SELECT batch_id FROM batch_events WHERE event = 'end' AND ts <= ?", (iso,)
+        )
+    }
+    out = {}
+    for bid, unit, start in src.execute(
+        "SELECT batch_id, unit, ts FROM batch_events WHERE event = 'start' AND ts <= ?", (iso,)
+    ):
+        if bid in ends:
+            continue
+        tt, assay = unit_tags[unit]
+        n_t = src.execute(
+            "SELECT COUNT(DISTINCT ts) FROM tag_samples WHERE tag = ? AND seq <= ? AND "
+            "quality = ? AND value BETWEEN ? AND ? AND ts >= ?",
+            (tt, replay.seq, GOOD_Q, *LIMITS_C, start),
         ).fetchone()[0]
-        self.seq = int(first) - 1
-        return self.advance_to(t_s)
-
-    def advance_to(self, t_s: float, samples=(), events=()) -> int:
-        """Copy the rows up to ``t_s``, then ``samples`` (tag, ts, value, quality) and
-        ``events`` (batch, unit, recipe, event, ts), injected after the tick's rows."""
-        cut = max(self.cut(t_s), self.seq)
-        rows = [
-            (seq * SEQ_SCALE, tag, ts, value, q)
-            for seq, tag, ts, value, q in self.src.execute(
-                "SELECT seq, tag, ts, value, quality FROM tag_samples "
-                "WHERE seq > ? AND seq <= ? ORDER BY seq",
-                (self.seq, cut),
-            )
-        ]
-        for i, row in enumerate(samples, start=1):
-            if i >= SEQ_SCALE:
-                raise ValueError("too many injected rows for one tick")
-            rows.append((cut * SEQ_SCALE + i, *row))
-        self.export.append_samples(rows)
-        ev = self.src.execute(
-            "SELECT seq, batch_id, unit, recipe, event, ts FROM batch_events "
-            "WHERE seq > ? AND ts <= ? ORDER BY seq",
-            (self.event_seq, _iso(t_s)),
-        ).fetchall()
-        if ev:
-            self.event_seq = max(e[0] for e in ev)
-        for row in events:
-            self.extra_event_seq += 1
-            ev.append((self.extra_event_seq, *row))
-        self.export.append_events(ev)
-        self.seq = cut
-        self.extra_seq += len(samples)
-        return len(rows)
-
-    def expected_counts(self, t_s: float, unit_tags: dict) -> dict:
-        """Per running batch: good distinct temperature times and assay times copied so far.
-
-        Counted in SQL on the source, independently of the reader: quality Good, a value
-        inside the unit's limits (assays: not NULL), at or after the batch start.
-        """
-        iso = _iso(t_s)
-        ends = {
-            r[0]
-            for r in self.src.execute(
-                "SELECT batch_id FROM batch_events WHERE event = 'end' AND ts <= ?", (iso,)
-            )
-        }
-        out = {}
-        for bid, unit, start in self.src.execute(
-            "SELECT batch_id, unit, ts FROM batch_events WHERE event = 'start' AND ts <= ?", (iso,)
-        ):
-            if bid in ends:
-                continue
-            tt, assay = unit_tags[unit]
-            n_t = self.src.execute(
-                "SELECT COUNT(DISTINCT ts) FROM tag_samples WHERE tag = ? AND seq <= ? AND "
-                "quality = ? AND value BETWEEN ? AND ? AND ts >= ?",
-                (tt, self.seq, GOOD_Q, *LIMITS_C, start),
-            ).fetchone()[0]
-            n_a = self.src.execute(
-                "SELECT COUNT(DISTINCT ts) FROM tag_samples WHERE tag = ? AND seq <= ? AND "
-                "quality = ? AND value IS NOT NULL AND ts >= ?",
-                (assay, self.seq, GOOD_Q, start),
-            ).fetchone()[0]
-            out[bid] = (n_t, n_a)
-        return out
-
-    def close(self):
-        self.src.close()
+        n_a = src.execute(
+            "SELECT COUNT(DISTINCT ts) FROM tag_samples WHERE tag = ? AND seq <= ? AND "
+            "quality = ? AND value IS NOT NULL AND ts >= ?",
+            (assay, replay.seq, GOOD_Q, start),
+        ).fetchone()[0]
+        out[bid] = (n_t, n_a)
+    return out
 
 
 # ------------------------------------------------------------------ terminations
@@ -265,82 +202,6 @@ def _config(export, app: str, store_path):
     return config_from_dict(data, PLANT_CONFIG)
 
 
-def _store_rows(monitor: Monitor) -> dict:
-    """The store's estimates, alerts and batches, keyed for comparison."""
-    with monitor.store.engine.connect() as conn:
-        est = {
-            (r.batch, r.at_s): r._asdict()
-            for r in conn.execute(
-                select(
-                    estimates.c.batch,
-                    estimates.c.at_s,
-                    estimates.c.conversion,
-                    estimates.c.conversion_sd,
-                    estimates.c.activity,
-                    estimates.c.activity_sd,
-                    estimates.c.target_conversion,
-                    estimates.c.predicted_end_s,
-                    estimates.c.p10_s,
-                    estimates.c.p90_s,
-                    estimates.c.forecast_note,
-                    estimates.c.n_assays_used,
-                    estimates.c.warnings,
-                    estimates.c.kinetics_version,
-                )
-            )
-        }
-        al = {
-            (r.batch, r.kind, r.raised_at_s): r._asdict()
-            for r in conn.execute(
-                select(
-                    alerts.c.batch,
-                    alerts.c.kind,
-                    alerts.c.severity,
-                    alerts.c.state,
-                    alerts.c.raised_at_s,
-                    alerts.c.cleared_at_s,
-                    alerts.c.message,
-                )
-            )
-        }
-        bt = {r.batch: r._asdict() for r in conn.execute(select(batches))}
-    return {"estimates": est, "alerts": al, "batches": bt}
-
-
-_NUMBER = re.compile(r"[-+]?\d+\.\d+(?:e[-+]?\d+)?")
-
-
-def _same(a, b) -> bool:
-    if isinstance(a, float) and isinstance(b, float):
-        return a == b or math.isclose(a, b, rel_tol=REL, abs_tol=0.0)
-    if isinstance(a, str) and isinstance(b, str) and a != b:
-        # a message may print a float: compare its numbers within REL, the rest exactly
-        na, nb = _NUMBER.findall(a), _NUMBER.findall(b)
-        return (
-            _NUMBER.sub("#", a) == _NUMBER.sub("#", b)
-            and len(na) == len(nb)
-            and all(
-                math.isclose(float(x), float(y), rel_tol=REL) for x, y in zip(na, nb, strict=True)
-            )
-        )
-    return a == b
-
-
-def assert_same_store(got: dict, want: dict) -> int:
-    """Keys exactly equal, every field equal (floats within 1e-9 relative); rows compared."""
-    n = 0
-    for table in ("estimates", "alerts", "batches"):
-        g, w = got[table], want[table]
-        assert set(g) == set(w), (
-            f"{table}: missing {sorted(set(w) - set(g))[:5]}, extra {sorted(set(g) - set(w))[:5]}"
-        )
-        for key, row in w.items():
-            bad = {c: (g[key][c], v) for c, v in row.items() if not _same(g[key][c], v)}
-            assert not bad, f"{table} {key}: {bad}"
-            n += 1
-    return n
-
-
 def _unit_tags(cfg) -> dict:
     return {u.name: (u.temperature_tag, u.assay_tag) for u in cfg.units}
 
@@ -352,7 +213,7 @@ def _held(monitor: Monitor) -> dict:
 @dataclass
 class Run:
     monitor: Monitor
-    replay: PgReplay
+    replay: Replay
     export: object
     cfg: object
     clock: dict
@@ -389,9 +250,10 @@ def _start_run(plant, pg_url, tmp_path, name: str) -> Run:
     export = make_export(pg_url)
     app = f"convmon_{name}_{uuid.uuid4().hex[:12]}"
     cfg = _config(export, app, tmp_path / f"{name}.db")
-    replay = PgReplay(plant.db_path, export, [u.temperature_tag for u in cfg.units])
+    tags = [u.temperature_tag for u in cfg.units]
+    replay = Replay(plant.db_path, export, tags, seq_gap=SEQ_SCALE)
     t0 = _epoch(REPLAY_START)
-    replay.start(t0)
+    replay.start(t0, history_s=HISTORY_S)
     clock = {"t": t0}
     monitor = Monitor(cfg, clock=lambda: clock["t"])
     return Run(monitor, replay, export, cfg, clock, app)
@@ -427,15 +289,13 @@ def clean_run(pg, plant, tmp_path_factory):
             run.replay.advance_to(run.clock["t"])
             assert run.cycle() is not None
             held.append(_held(run.monitor))
-        rows = _store_rows(run.monitor)
-        watermark = run.monitor.store.load_watermark()
+        rows = read_store(run.monitor.store)
     finally:
         _finish(run)
     assert rows["estimates"] and any(b["state"] == "complete" for b in rows["batches"].values())
     return {
         "rows": rows,
         "held": held,
-        "watermark": watermark,
         "quality": run.quality,
         "wall_s": time.perf_counter() - t0,
     }
@@ -478,11 +338,7 @@ def test_connection_terminated_mid_cycle(pg, plant, clean_run, tmp_path, caplog)
             run.replay.advance_to(run.clock["t"])
             sab.cut = cuts.get(k)
             mark = len(caplog.records)
-            before = (
-                _store_rows(run.monitor),
-                run.monitor.store.load_watermark(),
-                run.monitor.store.heartbeat(),
-            )
+            before = read_store(run.monitor.store)
             t_cycle = time.perf_counter()
             rep = run.cycle()
             elapsed = time.perf_counter() - t_cycle
@@ -495,11 +351,13 @@ def test_connection_terminated_mid_cycle(pg, plant, clean_run, tmp_path, caplog)
                 failed_ticks.append(k)
                 failed_s.append(elapsed)
                 # nothing committed: results and watermark as before, the failure recorded
-                assert _store_rows(run.monitor) == before[0]
-                assert run.monitor.store.load_watermark() == before[1]
-                beat = run.monitor.store.heartbeat()
-                assert beat["failed_cycles"] == (before[2]["failed_cycles"] or 0) + 1
-                assert beat["cycles"] == before[2]["cycles"]
+                after = read_store(run.monitor.store)
+                assert not compare_stores(
+                    before, after, rel=0.0, exclude={"heartbeat": "the failure, checked below"}
+                )
+                (was,), (beat,) = before["heartbeat"].values(), after["heartbeat"].values()
+                assert beat["failed_cycles"] == (was["failed_cycles"] or 0) + 1
+                assert beat["cycles"] == was["cycles"]
                 assert any("cycle failed" in r.getMessage() for r in caplog.records[mark:])
                 # with_retry slept its backoff between the attempts
                 delays = [float(re.search(r"retrying in ([\d.]+) s", m).group(1)) for m in retried]
@@ -511,13 +369,12 @@ def test_connection_terminated_mid_cycle(pg, plant, clean_run, tmp_path, caplog)
             want = clean_run["held"][k]
             got = _held(run.monitor)
             assert got == want, f"tick {k}: samples held {got} != clean run {want}"
-            expected = run.replay.expected_counts(run.clock["t"], _unit_tags(run.cfg))
+            expected = _expected_counts(run.replay, run.clock["t"], _unit_tags(run.cfg))
             assert got == expected, f"tick {k}: samples held {got} != source {expected}"
             checked_counts += len(got)
             if k in IDLE_CUTS:
                 assert kill() >= 1  # the pooled connection dies between cycles
-        rows = _store_rows(run.monitor)
-        watermark = run.monitor.store.load_watermark()
+        rows = read_store(run.monitor.store)
         beat = run.monitor.store.heartbeat()
     finally:
         sab.cut = None
@@ -536,8 +393,13 @@ def test_connection_terminated_mid_cycle(pg, plant, clean_run, tmp_path, caplog)
     assert failed_ticks == [k for k, c in cuts.items() if c.exhausts_retries]
     assert beat["failed_cycles"] == len(failed_ticks)
     assert beat["cycles"] == TICKS
-    n_rows = assert_same_store(rows, clean_run["rows"])
-    assert watermark == clean_run["watermark"]
+    diffs = compare_stores(
+        rows,
+        clean_run["rows"],
+        exclude={"heartbeat.failed_cycles": "the cuts fail cycles on purpose (checked above)"},
+    )
+    assert not diffs, "\n".join(diffs[:20])
+    n_rows = sum(row_counts(rows).values())
     # no row delivered twice or lost from a cut read: the same exclusions as the clean run
     assert run.quality == clean_run["quality"]
     delays = [
@@ -562,12 +424,12 @@ def test_connection_terminated_mid_cycle(pg, plant, clean_run, tmp_path, caplog)
         f"{', '.join(f'{t:.2f}' for t in failed_s)} s; "
         f"{wall:.1f} s wall (clean run {clean_run['wall_s']:.1f} s); {n_est} estimates "
         f"(sum of n_assays_used {assays}) and {n_rows} store rows equal to the clean run "
-        f"within {REL:g} relative; samples held = source counts for {checked_counts} "
-        "batch-ticks"
+        f"within {REL:g} relative (every column of every table); samples held = source "
+        f"counts for {checked_counts} batch-ticks"
     )
 
 
-def _bad_rows(replay: PgReplay, t_s: float, k: int, running: list, unit_tags):
+def _bad_rows(replay: Replay, t_s: float, k: int, running: list, unit_tags):
     """Bad rows for one tick: one of each kind on a running batch's tags, and broken events.
 
     Returns (samples, events, expected exclusions as a Counter of (tag, reason)).
@@ -637,10 +499,11 @@ def _without_sentinel(rows: dict, batch: str, t_s: float) -> dict:
 
     An assay passes no range check (its unit is the lab's), so -999 reaches the estimator,
     which reports it as an assay-mismatch finding and leaves it out (DESIGN.md: never
-    silently dropped). Everything else must be as if it had never arrived.
+    silently dropped). Everything else must be as if it had never arrived. The warning
+    is taken out of the estimate's ``warnings`` column and of its document alike.
     """
-    out = {"batches": rows["batches"], "estimates": {}, "alerts": {}}
-    flagged = 0
+    out = dict(rows)
+    out["estimates"], flagged = {}, 0
     for key, row in rows["estimates"].items():
         row = dict(row)
         if key[0] == batch and key[1] >= t_s:
@@ -648,6 +511,10 @@ def _without_sentinel(rows: dict, batch: str, t_s: float) -> dict:
             mine = [x for x in w if "(-999)" in x and "sd from the model; not used" in x]
             assert len(mine) == 1, f"estimate {key}: no mismatch finding for -999 in {w}"
             row["warnings"] = json.dumps([x for x in w if x not in mine])
+            doc = json.loads(row["doc"])
+            assert doc["warnings"] == w, f"estimate {key}: document and column disagree"
+            doc["warnings"] = [x for x in w if x not in mine]
+            row["doc"] = json.dumps(doc)
             flagged += 1
         out["estimates"][key] = row
     assert flagged >= 1
@@ -699,7 +566,7 @@ def test_bad_live_rows_never_stop_the_service(pg, plant, clean_run, tmp_path, ca
                 n_t, n_a = want_held[sentinel[0]]
                 want_held[sentinel[0]] = (n_t, n_a + 1)
             assert _held(run.monitor) == want_held, f"tick {k}: samples held differ"
-        rows = _store_rows(run.monitor)
+        rows = read_store(run.monitor.store)
         beat = run.monitor.store.heartbeat()
     finally:
         _finish(run)
@@ -713,7 +580,10 @@ def test_bad_live_rows_never_stop_the_service(pg, plant, clean_run, tmp_path, ca
     extra.subtract(clean_run["quality"])
     got = Counter({k: v for k, v in extra.items() if v})
     assert got == want, f"exclusions {dict(got)} != injected {dict(want)}"
-    n_rows = assert_same_store(_without_sentinel(rows, *sentinel), clean_run["rows"])
+    cleaned = _without_sentinel(rows, *sentinel)
+    diffs = compare_stores(cleaned, clean_run["rows"])
+    assert not diffs, "\n".join(diffs[:20])
+    n_rows = sum(row_counts(cleaned).values())
     by_reason = Counter()
     for (_tag, reason), n in got.items():
         by_reason[reason] += n
@@ -722,118 +592,5 @@ def test_bad_live_rows_never_stop_the_service(pg, plant, clean_run, tmp_path, ca
         f"{run.cycles} cycles, all succeeded, in {wall:.1f} s; exclusions counted as "
         f"injected, per tag and reason ({dict(sorted(by_reason.items()))}); the -999 assay "
         f"of {sentinel[0]} reported as an assay mismatch (one alert); otherwise {n_rows} "
-        "store rows equal to the clean run"
+        "store rows equal to the clean run (every column of every table)"
     )
-
-
-# ------------------------------------------------------------------ the store on MariaDB
-# Found while timing the cycle's commit: MariaDB's FLOAT is single precision, about 128 s
-# of resolution at today's epoch seconds, so a store there rounded every time it kept
-# and two polls 30 s apart collided on the estimates' unique (batch, at_s).
-@pytest.fixture
-def mariadb_store_url(mariadb_url):
-    """A database of its own on the MariaDB server: the store's tables have fixed names."""
-    from sqlalchemy.engine import make_url
-
-    name = f"convmon_store_{uuid.uuid4().hex[:12]}"  # generated here: no outside text
-    admin = create_engine(mariadb_url)
-    with admin.begin() as conn:
-        conn.execute(text(f"CREATE DATABASE {name}"))
-    try:
-        yield make_url(mariadb_url).set(database=name).render_as_string(hide_password=False)
-    finally:
-        with admin.begin() as conn:
-            conn.execute(text(f"DROP DATABASE {name}"))
-        admin.dispose()
-
-
-def _estimate_row(batch: str, at_s: float, end_s: float) -> dict:
-    return {
-        "batch": batch,
-        "at_s": at_s,
-        "conversion": 0.5,
-        "conversion_sd": 0.01,
-        "activity": 1.02,
-        "activity_sd": 0.03,
-        "target_conversion": 0.95,
-        "predicted_end_s": end_s,
-        "p10_s": end_s - 600.5,
-        "p90_s": end_s + 600.5,
-        "forecast_note": "",
-        "n_assays_used": 2,
-        "warnings": "[]",
-        "kinetics_version": "v1",
-        "doc": "{}",
-    }
-
-
-@pytest.mark.mariadb
-def test_store_keeps_epoch_seconds_on_mariadb(mariadb_store_url):
-    from monitor.store import Store
-
-    t0 = 1_791_358_200.125  # 2026-10-07T06:10:00.125Z
-    store = Store(mariadb_store_url)
-    try:
-        batch = {
-            "batch": "B-1",
-            "unit": "R-1",
-            "recipe": "DIM-7",
-            "start_s": t0 - 3600.5,
-            "end_s": None,
-            "state": "running",
-        }
-        kin = {"version": "v1", "recipe": "DIM-7", "source": "test", "first_used_s": t0}
-        polls = [t0 + 30.0 * i for i in range(4)]
-        for at in polls:
-            added = store.commit_cycle(
-                watermark={"mode": "seq", "seq": int(at)},
-                batch_rows=[batch],
-                estimate_rows=[_estimate_row("B-1", at, at + 7200.25)],
-                alert_changes=[],
-                kinetics_rows=[kin],
-                now_s=at,
-                last_data_s=at,
-            )
-            assert added["estimates"] == 1
-        again = store.commit_cycle(
-            watermark={"mode": "seq", "seq": 0},
-            batch_rows=[batch],
-            estimate_rows=[_estimate_row("B-1", polls[-1], 0.0)],
-            alert_changes=[],
-            kinetics_rows=[kin],
-            now_s=polls[-1],
-            last_data_s=polls[-1],
-        )
-        assert again["estimates"] == 0  # found again by its exact (batch, at_s)
-        snap = store.snapshot()
-        assert [e[1] for e in snap["estimates"]] == polls
-        assert [e[3] for e in snap["estimates"]] == [at + 7200.25 for at in polls]
-        assert snap["batches"][0][3] == t0 - 3600.5
-        assert store.heartbeat()["last_data_s"] == polls[-1]
-    finally:
-        store.close()
-
-
-@pytest.mark.mariadb
-def test_store_on_mariadb_upgrades_single_precision_columns(mariadb_store_url):
-    from sqlalchemy import inspect
-
-    from monitor.store import Store
-
-    Store(mariadb_store_url).close()
-    engine = create_engine(mariadb_store_url)
-    try:
-        with engine.begin() as conn:  # the store as the first two migrations left it
-            conn.execute(text("ALTER TABLE estimates MODIFY at_s FLOAT NOT NULL"))
-            conn.execute(text("ALTER TABLE heartbeat MODIFY last_data_s FLOAT"))
-            conn.execute(text("DELETE FROM schema_migrations WHERE name > '0002'"))
-        Store(mariadb_store_url).close()
-        types = {
-            (t, c["name"]): str(c["type"]).upper()
-            for t in ("estimates", "heartbeat")
-            for c in inspect(engine).get_columns(t)
-        }
-        assert types[("estimates", "at_s")].startswith("DOUBLE")
-        assert types[("heartbeat", "last_data_s")].startswith("DOUBLE")
-    finally:
-        engine.dispose()

@@ -17,6 +17,7 @@ from monitor.config import load_config
 from monitor.service.cycle import Monitor
 from sample_historian.replay import Replay
 from tests.reliability.harness import iso_to_s, write_config
+from tests.store_compare import read_store
 
 
 @pytest.mark.slow
@@ -32,7 +33,7 @@ def test_soak_thirty_plant_days(tmp_path):
     end = iso_to_s(plant.truth["export_end"])
     step = 3 * 3600.0
     replay = Replay(plant.db_path, tmp_path / "live.db", [u.temperature_tag for u in cfg.units])
-    replay.advance_to(start)
+    replay.start(start)
     monitor = Monitor(cfg, clock=lambda: clock)
     proc = psutil.Process()
     rss_day1 = None
@@ -52,16 +53,16 @@ def test_soak_thirty_plant_days(tmp_path):
     gc.collect()
     rss_end = proc.memory_info().rss
     growth = rss_end / rss_day1 - 1.0
-    snap = monitor.store.snapshot()
-    stored = {b[0]: b for b in snap["batches"]}
-    final = {e[0] for e in snap["estimates"]}
+    dump = read_store(monitor.store)
+    stored = {b["batch"]: b for b in dump["batches"].values()}
+    estimated = {e["batch"] for e in dump["estimates"].values()}
     complete = [b for b in plant.truth["batches"] if b["state"] == "complete"]
     missing = [
         b["batch"]
         for b in complete
         if b["batch"] not in stored
-        or stored[b["batch"]][5] != "complete"
-        or b["batch"] not in final
+        or stored[b["batch"]]["state"] != "complete"
+        or b["batch"] not in estimated
     ]
     days = (end - start) / 86_400.0
     print(

@@ -1,18 +1,24 @@
-"""The monitor's own database: results, alerts, watermarks, the archive ledger."""
+"""The monitor's own database: results, alerts, watermarks, the archive ledger.
 
-from .store import (
+`tables` holds the head schema the queries use, `schema` the Alembic revisions'
+runner (upgrade at open, adoption of pre-Alembic stores), `store` the `Store` class.
+"""
+
+from .schema import (
     MIGRATIONS,
-    Store,
-    alerts,
     applied_migrations,
+    current_revision,
+    migrate,
+    migrations_table,
+)
+from .store import Store, open_store
+from .tables import (
+    alerts,
     archive_index,
     batches,
     estimates,
     heartbeat,
     kinetics_versions,
-    migrate,
-    migrations_table,
-    open_store,
     watermarks,
 )
 
@@ -23,6 +29,7 @@ __all__ = [
     "applied_migrations",
     "archive_index",
     "batches",
+    "current_revision",
     "estimates",
     "heartbeat",
     "kinetics_versions",

@@ -1,211 +1,51 @@
 """The monitor's own database: estimates, alerts, watermarks, kinetics used, archive index.
 
-SQLite by default, PostgreSQL (or MariaDB) by URL. Schema changes are named
-migrations recorded in the database: an older store is upgraded, a store
-written by a newer convmon is refused. One poll cycle is one transaction.
+SQLite by default, PostgreSQL (or MariaDB) by URL. Opening a store upgrades its schema
+to head (`schema.migrate`; the tables are in `tables`); a store written by a newer
+convmon is refused. One poll cycle is one transaction.
 """
 
 from __future__ import annotations
 
 import json
 import logging
-from collections.abc import Callable
-from datetime import UTC, datetime
 from pathlib import Path
 
-from sqlalchemy import (
-    Column,
-    Double,
-    Integer,
-    MetaData,
-    String,
-    Table,
-    Text,
-    UniqueConstraint,
-    bindparam,
-    create_engine,
-    insert,
-    inspect,
-    select,
-    text,
-    update,
-)
+from sqlalchemy import bindparam, create_engine, func, insert, select, update
 from sqlalchemy.engine import Engine, make_url
-from sqlalchemy.exc import OperationalError, SQLAlchemyError
+from sqlalchemy.exc import DBAPIError, SQLAlchemyError
 
 from ..errors import AlertNotFoundError, StoreError
+from .schema import migrate
+from .tables import (
+    alerts,
+    batches,
+    estimates,
+    heartbeat,
+    kinetics_versions,
+    meta,
+    watermarks,
+)
 
 log = logging.getLogger(__name__)
-meta = MetaData()
-
-batches = Table(
-    "batches",
-    meta,
-    Column("batch", String(64), primary_key=True),
-    Column("unit", String(64)),
-    Column("recipe", String(64)),
-    Column("start_s", Double),
-    Column("end_s", Double),
-    Column("state", String(16)),
-)
-estimates = Table(
-    "estimates",
-    meta,
-    Column("id", Integer, primary_key=True, autoincrement=True),
-    Column("batch", String(64), nullable=False),
-    Column("at_s", Double, nullable=False),
-    Column("conversion", Double),
-    Column("conversion_sd", Double),
-    Column("activity", Double),
-    Column("activity_sd", Double),
-    Column("target_conversion", Double),
-    Column("predicted_end_s", Double),
-    Column("p10_s", Double),
-    Column("p90_s", Double),
-    Column("forecast_note", Text),
-    Column("n_assays_used", Integer),
-    Column("warnings", Text),
-    Column("kinetics_version", String(32)),
-    Column("doc", Text),
-    UniqueConstraint("batch", "at_s", name="uq_estimate_batch_at"),
-)
-alerts = Table(
-    "alerts",
-    meta,
-    Column("id", Integer, primary_key=True, autoincrement=True),
-    Column("batch", String(64), nullable=False),
-    Column("kind", String(32)),
-    Column("severity", String(16)),
-    Column("state", String(16)),
-    Column("raised_at_s", Double),
-    Column("cleared_at_s", Double),
-    Column("acked_by", String(64)),
-    Column("message", Text),
-    UniqueConstraint("batch", "kind", "raised_at_s", name="uq_alert"),
-)
-watermarks = Table(
-    "watermarks", meta, Column("name", String(64), primary_key=True), Column("value", Text)
-)
-kinetics_versions = Table(
-    "kinetics_versions",
-    meta,
-    Column("version", String(32), primary_key=True),
-    Column("recipe", String(64)),
-    Column("source", Text),
-    Column("first_used_s", Double),
-)
-archive_index = Table(
-    "archive_index",
-    meta,
-    Column("id", Integer, primary_key=True, autoincrement=True),
-    Column("batch", String(64)),
-    Column("version", Integer),
-    Column("pdf", Text),
-    Column("json", Text),
-    Column("sha256", String(64)),
-    Column("created_s", Double),
-)
-heartbeat = Table(
-    "heartbeat",
-    meta,
-    Column("name", String(32), primary_key=True),
-    Column("last_good_cycle_s", Double),
-    Column("last_data_s", Double),
-    Column("cycles", Integer),
-    Column("failed_cycles", Integer),
-    Column("message", Text),
-)
-migrations_table = Table(
-    "schema_migrations",
-    meta,
-    Column("name", String(128), primary_key=True),
-    Column("applied_at", String(40)),
-)
-
-
-def _m001_initial(conn) -> None:
-    meta.create_all(
-        conn, tables=[batches, estimates, alerts, watermarks, kinetics_versions, archive_index]
-    )
-
-
-def _m002_heartbeat(conn) -> None:
-    meta.create_all(conn, tables=[heartbeat])
-
-
-def _m003_double_precision(conn) -> None:
-    """Times and values as DOUBLE on MySQL/MariaDB, where FLOAT is single precision.
-
-    A single-precision epoch time resolves about 128 s, so polls 30 s apart collided on
-    (batch, at_s). SQLite REAL and PostgreSQL FLOAT are double precision already.
-    """
-    if conn.dialect.name not in ("mysql", "mariadb"):
-        return
-    quote = conn.dialect.identifier_preparer.quote
-    for table in (batches, estimates, alerts, kinetics_versions, archive_index, heartbeat):
-        # Core has no ALTER COLUMN; the names are this module's constants, not input
-        changes = ", ".join(
-            f"MODIFY {quote(c.name)} DOUBLE{'' if c.nullable else ' NOT NULL'}"
-            for c in table.columns
-            if isinstance(c.type, Double)
-        )
-        conn.execute(text(f"ALTER TABLE {quote(table.name)} {changes}"))
-
-
-#: Named migrations, applied in order and recorded; never edit one that shipped.
-MIGRATIONS: list[tuple[str, Callable]] = [
-    ("0001_initial", _m001_initial),
-    ("0002_heartbeat", _m002_heartbeat),
-    ("0003_double_precision", _m003_double_precision),
-]
 
 
 def open_store(url: str) -> Engine:
-    """Open (creating and upgrading if needed) the store at ``url``."""
+    """Open the store at ``url``, creating it or upgrading its schema to head if needed."""
     u = make_url(url)
     if u.get_backend_name() == "sqlite" and u.database and u.database != ":memory:":
         Path(u.database).parent.mkdir(parents=True, exist_ok=True)
+    engine = create_engine(u, pool_pre_ping=True)
     try:
-        engine = create_engine(u, pool_pre_ping=True)
         migrate(engine)
-    except OperationalError as exc:
-        raise StoreError(f"store unreachable: {str(exc.orig).strip().splitlines()[0]}") from None
+    except DBAPIError as exc:  # unreachable, refused, or a file that is not a database
+        engine.dispose()
+        why = (str(exc.orig).strip().splitlines() or [type(exc.orig).__name__])[0]
+        raise StoreError(f"store {u.render_as_string()} unreachable or unreadable: {why}") from None
+    except StoreError:
+        engine.dispose()
+        raise
     return engine
-
-
-def migrate(engine: Engine) -> list[str]:
-    """Apply pending migrations; refuse a store written by a newer version."""
-    known = [name for name, _ in MIGRATIONS]
-    applied_now = []
-    with engine.begin() as conn:
-        migrations_table.create(conn, checkfirst=True)
-        done = {r[0] for r in conn.execute(select(migrations_table.c.name))}
-        unknown = sorted(done - set(known))
-        if unknown:
-            raise StoreError(
-                f"the store was written by a newer convmon (migration "
-                f"{unknown[-1]!r} unknown to this version); upgrade convmon"
-            )
-        for name, fn in MIGRATIONS:
-            if name not in done:
-                fn(conn)
-                conn.execute(
-                    insert(migrations_table).values(
-                        name=name, applied_at=datetime.now(UTC).isoformat(timespec="seconds")
-                    )
-                )
-                applied_now.append(name)
-    return applied_now
-
-
-def applied_migrations(engine: Engine) -> list[str]:
-    if not inspect(engine).has_table("schema_migrations"):
-        return []
-    with engine.connect() as conn:
-        return [
-            r[0]
-            for r in conn.execute(select(migrations_table.c.name).order_by(migrations_table.c.name))
-        ]
 
 
 class Store:
@@ -359,42 +199,13 @@ class Store:
                     out.append(json.loads(row[0]))
         return out
 
-    def snapshot(self) -> dict:
-        """Everything a run leaves behind, for comparing runs (kill/restart tests)."""
+    def row_counts(self) -> dict[str, int]:
+        """Rows per table of the head schema."""
         with self.engine.connect() as conn:
-            est = [
-                tuple(r)
-                for r in conn.execute(
-                    select(
-                        estimates.c.batch,
-                        estimates.c.at_s,
-                        estimates.c.conversion,
-                        estimates.c.predicted_end_s,
-                    ).order_by(estimates.c.batch, estimates.c.at_s)
-                )
-            ]
-            al = [
-                tuple(r)
-                for r in conn.execute(
-                    select(
-                        alerts.c.batch,
-                        alerts.c.kind,
-                        alerts.c.state,
-                        alerts.c.raised_at_s,
-                        alerts.c.cleared_at_s,
-                    ).order_by(alerts.c.batch, alerts.c.kind, alerts.c.raised_at_s)
-                )
-            ]
-            bt = [tuple(r) for r in conn.execute(select(batches).order_by(batches.c.batch))]
-            arc = [
-                tuple(r)
-                for r in conn.execute(
-                    select(
-                        archive_index.c.batch, archive_index.c.version, archive_index.c.sha256
-                    ).order_by(archive_index.c.batch)
-                )
-            ]
-        return {"estimates": est, "alerts": al, "batches": bt, "archive": arc}
+            return {
+                name: conn.execute(select(func.count()).select_from(table)).scalar_one()
+                for name, table in meta.tables.items()
+            }
 
     def close(self) -> None:
         self.engine.dispose()

@@ -1,0 +1,1 @@
+"""The revisions, oldest first by ``down_revision``."""
