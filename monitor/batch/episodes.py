@@ -68,11 +68,7 @@ def _run_start(cond: np.ndarray) -> np.ndarray:
     return np.where(cond, first, -1)
 
 
-def held(t_s: np.ndarray, cond: np.ndarray, persistence: Persistence) -> np.ndarray:
-    """Points where ``cond`` has held for the persistence, counting back from each
-    (along the last axis; ``t_s`` is that axis's times)."""
-    cond = np.asarray(cond, dtype=bool)
-    first = _run_start(cond)
+def _held(t_s, cond, first, persistence: Persistence) -> np.ndarray:
     idx = np.arange(cond.shape[-1])
     safe = np.maximum(first, 0)
     count_ok = idx - safe + 1 >= persistence.min_count
@@ -80,18 +76,33 @@ def held(t_s: np.ndarray, cond: np.ndarray, persistence: Persistence) -> np.ndar
     return cond & count_ok & duration_ok
 
 
-def on_states(t_s, raise_cond, clear_cond, persistence, clear_persistence=None):
-    """The on/off state at each point (see `scan`), along the last axis of the
-    conditions (any leading axes are independent series on the same times)."""
-    t = np.asarray(t_s, dtype=float)
-    up = np.asarray(raise_cond, dtype=bool)
-    down = np.asarray(clear_cond, dtype=bool) & ~up
-    raise_ok = held(t, up, persistence)
-    clear_ok = held(t, down, clear_persistence or persistence)
-    idx = np.arange(up.shape[-1])
-    last_raise = np.maximum.accumulate(np.where(raise_ok, idx, -1), axis=-1)
-    last_clear = np.maximum.accumulate(np.where(clear_ok, idx, -1), axis=-1)
-    return last_raise > last_clear, last_raise, clear_ok
+def held(t_s: np.ndarray, cond: np.ndarray, persistence: Persistence) -> np.ndarray:
+    """Points where ``cond`` has held for the persistence, counting back from each
+    (along the last axis; ``t_s`` is that axis's times)."""
+    cond = np.asarray(cond, dtype=bool)
+    return _held(np.asarray(t_s, float), cond, _run_start(cond), persistence)
+
+
+class Runs:
+    """The runs of a raise and a clear condition along a series, ready to be judged
+    with any persistence (`states`); leading axes are independent series on the
+    same times."""
+
+    def __init__(self, t_s, raise_cond, clear_cond):
+        self.t = np.asarray(t_s, dtype=float)
+        self.up = np.asarray(raise_cond, dtype=bool)
+        self.down = np.asarray(clear_cond, dtype=bool) & ~self.up
+        self.first_up = _run_start(self.up)
+        self.first_down = _run_start(self.down)
+
+    def states(self, persistence: Persistence, clear_persistence: Persistence | None = None):
+        """``(on, last_raise, clear_ok)`` at each point (see `scan`)."""
+        raise_ok = _held(self.t, self.up, self.first_up, persistence)
+        clear_ok = _held(self.t, self.down, self.first_down, clear_persistence or persistence)
+        idx = np.arange(self.up.shape[-1])
+        last_raise = np.maximum.accumulate(np.where(raise_ok, idx, -1), axis=-1)
+        last_clear = np.maximum.accumulate(np.where(clear_ok, idx, -1), axis=-1)
+        return last_raise > last_clear, last_raise, clear_ok
 
 
 def scan(
@@ -122,12 +133,13 @@ def scan(
     t = np.asarray(t_s, dtype=float)
     if len(t) == 0:
         return Scan(t, np.zeros(0, bool), (), (), None, False)
-    up = np.asarray(raise_cond, dtype=bool)
-    on, last_raise, clear_ok = on_states(t, up, clear_cond, persistence, clear_persistence)
+    runs = Runs(t, raise_cond, clear_cond)
+    on, last_raise, clear_ok = runs.states(persistence, clear_persistence)
+    up = runs.up
     prev = np.concatenate([[False], on[:-1]])
     raised = tuple(float(v) for v in t[on & ~prev])
     cleared = tuple(float(v) for v in t[~on & prev])
     since = None
     if on[-1]:
-        since = float(t[_run_start(up)[last_raise[-1]]])
+        since = float(t[runs.first_up[last_raise[-1]]])
     return Scan(t, on, raised, cleared, since, bool(clear_ok[-1]))

@@ -23,7 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.stats import binomtest
 
-from ..batch.episodes import Persistence, on_states
+from ..batch.episodes import Persistence, Runs
 from ..batch.estimator import posterior_for
 from ..batch.golden_profile import RuleLevel
 from ..batch.golden_signals import (
@@ -127,10 +127,11 @@ class Calibration:
     def _others(self, i: int):
         return np.arange(len(self.items)) != i
 
-    def flags(self, rule: str, p: float, w: float, options, hysteresis: float) -> list[set]:
-        """For each persistence option, the batches that would have raised ``rule``."""
+    def signals(self, rule: str, p: float, w: float, hysteresis: float) -> list:
+        """Per golden batch, ``(batch, Runs, visible)`` of ``rule`` judged against the
+        limits ``(p, w)`` built without that batch."""
         gs = self.gs
-        out = [set() for _ in options]
+        out = []
         for i, r in enumerate(self.replays):
             o = self._others(i)
             if rule == "behind_profile":
@@ -140,7 +141,7 @@ class Calibration:
                     min_count=gs.min_count,
                 )  # fmt: skip
                 up, down = behind_signal(lim, hysteresis, r.t_rel_s[None, :], r.X)[:2]
-                t, vis = r.t_s, r.visible[: len(r.X)].copy()
+                t, vis = r.t_s, r.visible.copy()
                 vis[: gs.min_assays] = False
             elif rule == "late_finish":
                 if r.end_s is None:
@@ -169,11 +170,13 @@ class Calibration:
                 )  # fmt: skip
                 up, down = activity_signal(lim, hysteresis, r.act_mean, r.act_sd)
                 t, vis = r.act_t, np.ones(len(r.act_t), bool)
-            for j, per in enumerate(options):
-                on = on_states(t, up, down, per)[0]
-                if np.any(on & vis):
-                    out[j].add(r.batch)
+            out.append((r.batch, Runs(t, up, down), vis))
         return out
+
+    @staticmethod
+    def flagged(signals: list, persistence: Persistence) -> set:
+        """The batches whose replay would have raised the alert at least once."""
+        return {b for b, runs, vis in signals if np.any(runs.states(persistence)[0] & vis)}
 
     def choose(self) -> tuple[dict, dict]:
         """The rule levels and the calibration figures (see the module docstring)."""
@@ -188,18 +191,21 @@ class Calibration:
             chosen = None
             curve = []
             for p, w in gs.ladder:
-                fl = self.flags(rule, p, w, options, h)
-                curve.append([p, w, [len(f) for f in fl]])
-                for per, f in zip(options, fl, strict=True):
+                sig = self.signals(rule, p, w, h)
+                counts = []
+                for per in options:
+                    f = self.flagged(sig, per)
+                    counts.append(len(f))
                     if len(union | f) <= allowed:
                         chosen = (p, w, per, f)
                         break
+                curve.append([p, w, counts])
                 if chosen:
                     break
             feasible = chosen is not None
             if not feasible:  # even the loosest limit flags too many: keep the loosest
                 p, w = gs.ladder[-1]
-                chosen = (p, w, options[-1], fl[-1])
+                chosen = (p, w, options[-1], f)
             p, w, per, f = chosen
             union |= f
             levels[rule] = RuleLevel(p, w, per, per, h)

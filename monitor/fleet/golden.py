@@ -179,8 +179,13 @@ def build_profile(
     batches=None,
     estimator=None,
     created_at_s: float,
+    replays: dict | None = None,
 ) -> GoldenProfile:
-    """Select, build and calibrate a recipe's golden profile (see the module docstring)."""
+    """Select, build and calibrate a recipe's golden profile (see the module docstring).
+
+    ``replays`` caches each batch's calibration replay by batch id (it depends only on
+    the batch and the estimator settings): pass one dict to builds over subsets.
+    """
     gs = settings or GoldenSettings()
     chosen, left_out = select_golden(history, criteria or GoldenCriteria(), batches)
     if len(chosen) < gs.min_batches:
@@ -193,8 +198,11 @@ def build_profile(
     step = chosen[0].hindsight.trajectory.step_s
     x_levels = np.arange(gs.x_min, model.target_conversion + 1e-9, gs.x_step)
     est = estimator or EstimatorSettings()
-    replays = [replay_data(it, est, step) for it in chosen]
-    cal = Calibration(chosen, replays, x_levels, step, gs)
+    cache = {} if replays is None else replays
+    for it in chosen:
+        if it.batch.batch not in cache:
+            cache[it.batch.batch] = replay_data(it, est, step)
+    cal = Calibration(chosen, [cache[it.batch.batch] for it in chosen], x_levels, step, gs)
     levels, figures = cal.choose()
     ttt = cal.ttt
     kw = {"display_p": gs.display_p}
