@@ -49,6 +49,7 @@ from .golden_signals import (
 from .paths import ActivityPoint
 
 _SYMBOL = {"degC": "°C", "degF": "°F", "K": "K"}
+GOLDEN_KINDS = ("behind_profile", "late_finish", "temperature_off_profile", "low_activity")
 
 
 @dataclass(frozen=True)

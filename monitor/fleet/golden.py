@@ -166,6 +166,17 @@ def select_golden(history: RecipeHistory, criteria: GoldenCriteria, named=None):
     return [it for it in items if it.batch.batch not in why], why
 
 
+def _reasons(left_out: dict, most: int = 3) -> str:
+    """The commonest reasons batches were left out, counted ("12 x data problems: ...")."""
+    counts: dict = {}
+    for reasons in left_out.values():
+        for r in reasons:
+            key = r.split(" below target")[0].split(" outside ")[0]
+            counts[key] = counts.get(key, 0) + 1
+    top = sorted(counts.items(), key=lambda kv: -kv[1])[:most]
+    return "; ".join(f"{n} x {r}" for r, n in top)
+
+
 def _ttt(it) -> float:
     v = it.hindsight.figures.time_to_target_s
     return np.nan if v is None else float(v)
@@ -192,7 +203,7 @@ def build_profile(
         raise DataQualityError(
             f"recipe {history.recipe}: {len(chosen)} good batch(es) for a golden profile, "
             f"at least {gs.min_batches} needed"
-            + (f" ({len(left_out)} left out; see the selection)" if left_out else "")
+            + (f"; left out: {_reasons(left_out)}" if left_out else "")
         )
     model = history.model
     step = chosen[0].hindsight.trajectory.step_s
