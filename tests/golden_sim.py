@@ -51,6 +51,9 @@ class Planted:
 @dataclass
 class LiveResult:
     first_raise: dict = field(default_factory=dict)  # kind -> data time [s]
+    # the first cycle whose arrived assays put the activity below the golden limit
+    # (mean + z sd): the earliest the lab data could tell a slow batch [s]
+    assays_tell_s: float | None = None
     raises: list = field(default_factory=list)  # (kind, data time, message)
     clears: list = field(default_factory=list)
 
@@ -172,6 +175,9 @@ def live_alerts(
         if n_t:
             at = float(min(st.trace.last_t_s, now))
             post, _, _ = posterior_for(st, at, settings)
+            a = profile.activity
+            if out.assays_tell_s is None and post.alpha_mean + a.z * post.alpha_sd < a.limit:
+                out.assays_tell_s = at
             known = activity_path(st, at, settings, known)
             past = batch_past(st, post, at, step, known, settings.horizon_h * 3600.0)
             for c in golden_conditions(past, profile, open_kinds, unit=unit):

@@ -35,9 +35,7 @@ def test_quantiles_equal_numpy_on_each_column(v, qs, min_count):
             assert_allclose(got[:, j], np.quantile(col, qs), rtol=1e-12, atol=1e-9)
 
 
-@given(
-    st.floats(0.0, 10.0), st.floats(-5.0, 0.0), st.floats(0.0, 4.0), st.floats(0.0, 4.0)
-)
+@given(st.floats(0.0, 10.0), st.floats(-5.0, 0.0), st.floats(0.0, 4.0), st.floats(0.0, 4.0))
 def test_a_limit_widens_with_w_and_keeps_its_margin(med, below, w, margin):
     q = med + below
     low = bands.limit(med, q, w, margin, "low")
@@ -87,8 +85,6 @@ def test_behind_limits_are_numpy_quantiles_of_the_batches():
 def test_temperature_band_holds_its_last_value_past_the_batches():
     T = np.full((4, 10), np.nan)
     T[:, :6] = 340.0 + np.arange(4)[:, None] * 0.1
-    lim = bands.temperature_limits(
-        T, 60.0, p=0.0, w=0.0, display_p=0.05, margin_k=1.0, min_count=3
-    )
+    lim = bands.temperature_limits(T, 60.0, p=0.0, w=0.0, display_p=0.05, margin_k=1.0, min_count=3)
     assert_allclose(lim.median[6:], lim.median[5])
     assert_allclose(lim.limit_lo, lim.median - 1.0)  # the margin, wider than the band

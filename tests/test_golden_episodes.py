@@ -34,9 +34,7 @@ def reference_states(t, up, down, per: Persistence, clear: Persistence):
 
 
 signals = st.lists(st.floats(-3.0, 3.0, allow_nan=False), min_size=1, max_size=200)
-persistences = st.builds(
-    Persistence, st.sampled_from([0.0, 60.0, 300.0, 900.0]), st.integers(1, 4)
-)
+persistences = st.builds(Persistence, st.sampled_from([0.0, 60.0, 300.0, 900.0]), st.integers(1, 4))
 
 
 @given(signals, persistences, persistences, st.floats(0.0, 1.0))

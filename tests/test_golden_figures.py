@@ -37,7 +37,9 @@ def x_true(t_s):
 
 
 def state_for(kind="conversion", *, residuals=None, plan=((0.0, T_REF),), charge=True):
-    recipe = RecipeModel("AX", KIN, 0.95, kind, 0.002 if kind == "conversion" else 0.004, C_A0, plan)
+    recipe = RecipeModel(
+        "AX", KIN, 0.95, kind, 0.002 if kind == "conversion" else 0.004, C_A0, plan
+    )
     st = BatchState("B1", "R1", recipe, 0.0, C_A0, end_s=END_S, charge_from_tag=charge)
     t = np.arange(0.0, END_S + 1.0, 10.0)
     st.add_temperature(t, np.full(len(t), T_REF))
