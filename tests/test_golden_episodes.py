@@ -24,11 +24,10 @@ def reference_states(t, up, down, per: Persistence, clear: Persistence):
         d = down[i] and not up[i]
         run_down = (run_down if run_down is not None else i) if d else None
         if not on and run_up is not None:
-            if i - run_up + 1 >= per.min_count and t[i] - t[run_up] >= per.min_duration_s:
-                on = True
+            on = i - run_up + 1 >= per.min_count and t[i] - t[run_up] >= per.min_duration_s
         elif on and run_down is not None:
-            if i - run_down + 1 >= clear.min_count and t[i] - t[run_down] >= clear.min_duration_s:
-                on = False
+            done = i - run_down + 1 >= clear.min_count
+            on = not (done and t[i] - t[run_down] >= clear.min_duration_s)
         out.append(on)
     return np.array(out, bool)
 

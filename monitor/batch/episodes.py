@@ -135,7 +135,6 @@ def scan(
         return Scan(t, np.zeros(0, bool), (), (), None, False)
     runs = Runs(t, raise_cond, clear_cond)
     on, last_raise, clear_ok = runs.states(persistence, clear_persistence)
-    up = runs.up
     prev = np.concatenate([[False], on[:-1]])
     raised = tuple(float(v) for v in t[on & ~prev])
     cleared = tuple(float(v) for v in t[~on & prev])
