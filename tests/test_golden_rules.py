@@ -124,7 +124,7 @@ def test_a_cold_hold_is_off_profile_in_the_units_temperature_unit(profile):
     st = make_batch("C", 1.0, rng, until=2.4 * 3600.0, shift=shift)
     c = judge(st, profile, 2.4 * 3600.0, unit="degF")["temperature_off_profile"]
     assert c.active
-    assert c.message.startswith("temperature 147.2 °F at 2 h 24 min")  # 64 degC, 337.15 K
+    assert c.message.startswith("temperature 147.2 °F at 2 h 24 min; good batches 158.0–158.0 °F")
     assert "off since 1 h 3" in c.message
     back = make_batch("C2", 1.0, rng, until=3.5 * 3600.0, shift=shift)
     was_open = {"temperature_off_profile"}

@@ -176,6 +176,10 @@ def _temp(T_K: float, unit: str) -> str:
     return f"{from_kelvin(T_K, unit):.1f} {_SYMBOL.get(unit, unit)}"
 
 
+def _temp_range(lo_k: float, hi_k: float, unit: str) -> str:
+    return f"{from_kelvin(lo_k, unit):.1f}–{_temp(hi_k, unit)}"
+
+
 def _informed(past: BatchPast, profile: GoldenProfile) -> bool:
     """Conversion and predicted end are compared with good batches only once assays
     inform the activity: before, they are the kinetics' guess, not the batch's."""
@@ -195,11 +199,12 @@ def behind_profile(past: BatchPast, profile: GoldenProfile, was_open: bool) -> C
     x, tr = float(past.conversion[-1]), float(t_rel[-1])
     lo, hi = (float(on_grid(a, b.step_s, [tr])[0]) for a in (b.x_band_lo, b.x_band_hi))
     lag_now = float(lag[-1])
-    lag_txt = (
-        f"{duration(abs(lag_now))} {'behind' if lag_now > 0 else 'ahead of'} the median good batch"
-        if np.isfinite(lag_now)
-        else "too early to compare times"
-    )
+    lag_txt = "too early to compare times"
+    if np.isfinite(lag_now):
+        lag_txt = (
+            f"{duration(abs(lag_now))} {'behind' if lag_now > 0 else 'ahead of'} the median "
+            f"good batch (limit {duration(float(lag_lim[-1]))})"
+        )
     msg = f"X {x:.2f} at {duration(tr)}; good batches {lo:.2f}–{hi:.2f} there; {lag_txt}"
     if s.since_s is not None:
         msg += f"; behind since {duration(s.since_s - past.start_s)}"
@@ -231,13 +236,13 @@ def late_finish(
     f = profile.finish
     shown = p50_end_s - past.start_s if p50_end_s is not None else float(d[-1])
     end_txt = (
-        f"end predicted {duration(shown)} after start"
+        f"P50 end {duration(shown)} after start"
         if np.isfinite(shown)
-        else ("target not reached within the forecast horizon")
+        else "target not reached within the forecast horizon"
     )
     msg = (
-        f"{end_txt} at {duration(float(t[-1] - past.start_s))}; good batches reached "
-        f"target in {duration(f.median_s)} (up to {duration(f.band_hi_s)}; limit "
+        f"{end_txt}, seen at {duration(float(t[-1] - past.start_s))}; good batches reached "
+        f"target in {duration(f.median_s)}, up to {duration(f.band_hi_s)} (late after "
         f"{duration(f.limit_s)})"
     )
     data = {"predicted_duration_s": shown if np.isfinite(shown) else None, "limit_s": f.limit_s}
@@ -259,8 +264,7 @@ def temperature_off_profile(
     blo, bhi = (float(on_grid(a, tl.step_s, [tr])[0]) for a in (tl.band_lo, tl.band_hi))
     msg = (
         f"temperature {_temp(T[-1], unit)} at {duration(tr)}; good batches "
-        f"{_temp(blo, unit)}–{_temp(bhi, unit)} there (limits {_temp(lo[-1], unit)}–"
-        f"{_temp(hi[-1], unit)})"
+        f"{_temp_range(blo, bhi, unit)} there (limits {_temp_range(lo[-1], hi[-1], unit)})"
     )
     if s.since_s is not None:
         msg += f"; off since {duration(s.since_s - past.start_s)}"
@@ -280,9 +284,9 @@ def low_activity(past: BatchPast, profile: GoldenProfile, was_open: bool) -> Con
     s = _episodes(t, up, down, level)
     a = profile.activity
     msg = (
-        f"activity {mean[-1]:.2f} ± {sd[-1]:.2f} after {len(pts)} assay(s) (at "
-        f"{duration(t[-1] - past.start_s)}); good batches {a.band_lo:.2f} and up "
-        f"(median {a.median:.2f}, limit {a.limit:.2f})"
+        f"activity {mean[-1]:.2f} ± {sd[-1]:.2f} from {len(pts)} assay(s) up to "
+        f"{duration(t[-1] - past.start_s)}; good batches {a.band_lo:.2f} and up (median "
+        f"{a.median:.2f}; low below {a.limit:.2f})"
     )
     data = {"activity": float(mean[-1]), "activity_sd": float(sd[-1]), "limit": a.limit}
     return Condition("low_activity", Severity.WARNING, s.active(was_open), msg, data)
