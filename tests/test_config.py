@@ -13,6 +13,7 @@ from hypothesis import strategies as st
 
 from monitor.config import config_from_dict, load_config
 from monitor.errors import ConfigError
+from tests.fixtures_plant import write_plant_config
 
 BASE = """
 [historian]
@@ -539,3 +540,23 @@ def test_junk_at_any_key_is_a_config_error_never_a_traceback(tmp_path_factory, w
         assert exc.exit_code == 2
     else:
         assert all(math.isfinite(v) for u in cfg.units for v in u.temperature_limits_k)
+
+
+def test_golden_table_and_recipe_temperature_limits(tmp_path):
+    """``[golden]`` and a recipe's ``temperature_limits`` (read in its ``plan_unit``)."""
+    cfg = load_config(write_plant_config(tmp_path / "plant.db", tmp_path))
+    assert cfg.golden.false_alarm_rate == 0.05 and cfg.golden.min_batches == 5
+    assert cfg.recipe("DIM-7").temperature_limits_k == pytest.approx((283.15, 355.15))
+    text = (tmp_path / "sample_plant.toml").read_text()
+    bad = text.replace("false_alarm_rate = 0.05", "false_alarm_rate = 1.5")
+    (tmp_path / "bad.toml").write_text(bad)
+    with pytest.raises(ConfigError, match="golden.false_alarm_rate"):
+        load_config(tmp_path / "bad.toml")
+    f = text.replace(
+        'plan_unit = "degC"\ntemperature_limits = [10.0, 82.0]',
+        'plan_unit = "degF"\ntemperature_limits = [50.0, 179.6]',
+    )
+    (tmp_path / "f.toml").write_text(f)
+    assert load_config(tmp_path / "f.toml").recipe("DIM-7").temperature_limits_k == pytest.approx(
+        (283.15, 355.15)
+    )

@@ -149,6 +149,11 @@ class RecipeConfig(BaseModel):
     ] = 0.95
     plan_unit: TemperatureUnit = "degC"
     temperature_plan: tuple[tuple[Number, Number], ...] = ()
+    # the recipe's own temperature limits (in plan_unit in a file): outside them a batch is
+    # off profile whatever its golden band says
+    temperature_limits_k: tuple[Number, Number] | None = Field(
+        None, validation_alias="temperature_limits"
+    )
     safety: SafetyConfig | None = None
     _name: str = PrivateAttr("")
 
@@ -197,6 +202,28 @@ class RecipeConfig(BaseModel):
                 )
             plan.append((float(point[0]) * 60.0, float(to_kelvin(point[1], unit))))
         return tuple(plan)
+
+    @field_validator("temperature_limits_k", mode="before")
+    @classmethod
+    def _recipe_limits_to_kelvin(cls, value: Any, info: ValidationInfo) -> Any:
+        if from_file(info) is None or value is None:
+            return value
+        unit = file_unit(info, "plan_unit")
+        if not (isinstance(value, list) and len(value) == 2 and all(map(is_number, value))):
+            raise ValueError(f"expected [low, high] in {unit}, got {shown(value)}")
+        return tuple(float(to_kelvin(v, unit)) for v in value)
+
+    @field_validator("temperature_limits_k")
+    @classmethod
+    def _recipe_limits_ordered(cls, value: tuple | None) -> tuple | None:
+        if value is None:
+            return value
+        low, high = value
+        check_range(low, "a low limit [K]", *limits.TEMPERATURE_K)
+        check_range(high, "a high limit [K]", *limits.TEMPERATURE_K)
+        if not low < high:
+            raise ValueError(f"expected [low, high] with low < high, got {list(value)!r} [K]")
+        return value
 
     @field_validator("temperature_plan")
     @classmethod

@@ -146,6 +146,18 @@ class WritebackConfig(BaseModel):
         return url
 
 
+class GoldenConfig(BaseModel):
+    """``[golden]``: how golden profiles are calibrated (`convmon golden build`)."""
+
+    model_config = FROZEN
+    # the largest share of golden batches that would have raised an alert, each judged
+    # leave-one-batch-out against a profile built without it
+    false_alarm_rate: Annotated[
+        Number, in_range("a share of batches", 0.0, 1.0, low_open=True, high_open=True)
+    ] = 0.05
+    min_batches: Annotated[Integer, in_range("a number of batches", 3)] = 5
+
+
 class SiteConfig(BaseModel):
     """``[site]``: the plant's name and the zone of local times shown to people."""
 
@@ -165,6 +177,7 @@ class Config(BaseModel):
     poll: PollConfig = PollConfig()
     estimator: EstimatorConfig = EstimatorConfig()
     writeback: WritebackConfig = WritebackConfig()
+    golden: GoldenConfig = GoldenConfig()
     site: SiteConfig = SiteConfig()
     _path: Path | None = PrivateAttr(None)
 

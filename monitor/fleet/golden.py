@@ -94,6 +94,17 @@ class GoldenSettings:
         return d
 
 
+def settings_for(cfg, recipe: str) -> GoldenSettings:
+    """The settings of a recipe's profile from the configuration (``[golden]``, and the
+    recipe's own ``temperature_limits``)."""
+    rc = cfg.recipe(recipe)
+    return GoldenSettings(
+        target_rate=cfg.golden.false_alarm_rate,
+        min_batches=cfg.golden.min_batches,
+        recipe_limits_k=tuple(rc.temperature_limits_k) if rc and rc.temperature_limits_k else None,
+    )
+
+
 @dataclass(frozen=True)
 class GoldenCriteria:
     """Which completed batches count as good when none are named.

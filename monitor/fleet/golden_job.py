@@ -15,7 +15,7 @@ from ..batch.golden_profile import GoldenProfile
 from ..config import Config
 from ..config.models import recipe_model
 from ..store import Store
-from .golden import GoldenCriteria, GoldenSettings, build_profile
+from .golden import GoldenCriteria, GoldenSettings, build_profile, settings_for
 from .history import recipe_history
 
 
@@ -41,7 +41,7 @@ def build_golden(
     store.save_figures([it.hindsight.figures for it in history.items], now_s=now_s)
     profile = build_profile(
         history,
-        settings=settings or GoldenSettings(),
+        settings=settings or settings_for(cfg, recipe),
         criteria=criteria,
         batches=batches,
         estimator=cfg.estimator,
