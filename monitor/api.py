@@ -3,19 +3,25 @@
 from __future__ import annotations
 
 import os
+import time
+from dataclasses import dataclass
 from pathlib import Path
 
 from . import timefmt
 from .batch.estimator import Estimate, estimate
 from .batch.findings import Finding, Kind, Severity
+from .batch.golden_profile import GoldenProfile
 from .batch.kinetics import Kinetics
 from .batch.state import state_from_data
 from .config import DEFAULT_CONFIG, ENV_VAR, Config, load_config, load_kinetics
 from .config.models import recipe_model
 from .errors import DataQualityError, UsageError
+from .fleet.golden_job import build_golden, show_golden
 from .historian.model import Batch
 from .historian.reader import HistorianReader
 from .outputs.documents import batch_json
+from .outputs.golden_chart import golden_chart
+from .outputs.golden_text import golden_json, golden_lines
 from .store import Store
 
 
@@ -190,3 +196,75 @@ def lab_prior(cfg: Config | None, recipe: str | None) -> tuple[Kinetics | None, 
     if rc is None or not Path(rc.kinetics).exists():
         return None, None
     return load_kinetics(rc.kinetics), Path(rc.kinetics)
+
+
+@dataclass(frozen=True)
+class GoldenOutcome:
+    """A golden profile as a command shows it: stored or built just now, and its chart."""
+
+    profile: GoldenProfile
+    stored: bool
+    chart: str | None
+    temperature_unit: str
+
+    def document(self) -> dict:
+        return golden_json(self.profile, stored=self.stored, chart=self.chart)
+
+    def lines(self, zone: str) -> list[str]:
+        return golden_lines(self.profile, zone, stored=self.stored, unit=self.temperature_unit)
+
+
+def golden_build(
+    cfg: Config,
+    recipe: str,
+    *,
+    batches: list[str] | None = None,
+    now_s: float | None = None,
+    progress=None,
+    chart: str | Path | None = None,
+) -> GoldenOutcome:
+    """Build the recipe's golden profile from history and store it as a new version
+    (``chart``: also draw it there)."""
+    model = recipe_model(cfg, recipe)  # a recipe without its table is a configuration error
+    store = Store(cfg.store.url)
+    try:
+        profile = build_golden(
+            cfg,
+            recipe,
+            store,
+            now_s=now_s or time.time(),
+            batches=batches,
+            progress=progress,
+            model=model,
+        )
+    finally:
+        store.close()
+    return _outcome(cfg, profile, True, chart)
+
+
+def golden_show(
+    cfg: Config,
+    recipe: str,
+    *,
+    now_s: float | None = None,
+    progress=None,
+    chart: str | Path | None = None,
+) -> GoldenOutcome:
+    """The recipe's latest stored golden profile, else one built now from history and
+    not stored (``chart``: draw it there)."""
+    model = recipe_model(cfg, recipe)
+    store = Store(cfg.store.url)
+    try:
+        profile, stored = show_golden(
+            cfg, recipe, store, now_s=now_s or time.time(), progress=progress, model=model
+        )
+    finally:
+        store.close()
+    return _outcome(cfg, profile, stored, chart)
+
+
+def _outcome(cfg: Config, profile: GoldenProfile, stored: bool, chart) -> GoldenOutcome:
+    rc = cfg.recipe(profile.recipe)
+    unit = rc.plan_unit if rc is not None else "degC"  # people read a recipe in its plan's unit
+    path = str(golden_chart(profile, chart, unit=unit)) if chart else None
+    return GoldenOutcome(profile, stored, path, unit)

@@ -24,6 +24,7 @@ COMMANDS: dict[str, str] = {
     "status": "status:status",
     "watch": "status:watch",
     "alerts": "alerts:alerts",
+    "golden": "golden:golden",
 }
 
 _LOG_FORMAT = "%(asctime)s %(levelname)s %(name)s: %(message)s"

@@ -30,13 +30,14 @@ def build_golden(
     criteria: GoldenCriteria | None = None,
     save: bool = True,
     progress: Callable[[int, int, str], None] | None = None,
+    model=None,
 ) -> GoldenProfile:
     """Build the recipe's profile from history; with ``save``, store it as a new version.
 
     Named ``batches`` are read alone; otherwise every completed batch of the recipe is
     read and the criteria choose. Every batch's figures are stored either way.
     """
-    model = recipe_model(cfg, recipe)
+    model = model or recipe_model(cfg, recipe)
     history = recipe_history(cfg, recipe, batches=batches, model=model, progress=progress)
     store.save_figures([it.hindsight.figures for it in history.items], now_s=now_s)
     profile = build_profile(
@@ -54,10 +55,13 @@ def build_golden(
 
 
 def show_golden(
-    cfg: Config, recipe: str, store: Store, *, now_s: float, progress=None
+    cfg: Config, recipe: str, store: Store, *, now_s: float, progress=None, model=None
 ) -> tuple[GoldenProfile, bool]:
     """``(profile, stored)``: the latest stored profile, else one built now and not stored."""
     profile = store.latest_golden_profile(recipe)
     if profile is not None:
         return profile, True
-    return build_golden(cfg, recipe, store, now_s=now_s, save=False, progress=progress), False
+    profile = build_golden(
+        cfg, recipe, store, now_s=now_s, save=False, progress=progress, model=model
+    )
+    return profile, False
