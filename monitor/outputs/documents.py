@@ -67,12 +67,17 @@ def estimate_json(e) -> dict:
     return doc
 
 
-def estimate_record(e) -> dict:
+def estimate_record(e, *, golden: dict | None = None) -> dict:
     """The flat record of an estimate (the store's row, the write-back's source).
 
     Times stay epoch seconds [s]; ``doc`` is the `estimate_json` document, so a
-    reader of the store sees exactly what ``convmon estimate --json`` prints.
+    reader of the store sees exactly what ``convmon estimate --json`` prints, plus,
+    from the live monitor, ``golden``: how far the batch is from its recipe's golden
+    band.
     """
+    doc = estimate_json(e)
+    if golden is not None:
+        doc["golden"] = golden
     return {
         "batch": e.batch,
         "at_s": e.at_s,
@@ -88,5 +93,5 @@ def estimate_record(e) -> dict:
         "n_assays_used": e.n_assays_used,
         "warnings": json.dumps(e.warnings),
         "kinetics_version": e.kinetics_version,
-        "doc": json.dumps(_clean(estimate_json(e)), separators=(",", ":")),
+        "doc": json.dumps(_clean(doc), separators=(",", ":")),
     }

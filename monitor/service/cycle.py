@@ -25,6 +25,7 @@ from ..historian.reader import HistorianReader
 from ..outputs.documents import estimate_record
 from ..outputs.writeback import WriteBack
 from ..store import Store
+from .golden_watch import GoldenWatch, band_summary
 
 log = logging.getLogger(__name__)
 
@@ -68,6 +69,7 @@ class Monitor:
         self.watermark = self.store.load_watermark()
         self._open_alerts = {(a["batch"], a["kind"]): a for a in self.store.open_alerts()}
         self._store_running = set(self.store.running_batches())
+        self.golden = GoldenWatch(self.store, cfg.estimator)
         self._unmonitored: set[str] = set()  # batches already reported as not configured
 
     def _model(self, recipe: str):
@@ -103,6 +105,7 @@ class Monitor:
         poll = self.reader.poll(self.watermark)
         rep.rows_read = poll.rows_read
         batches, _problems = self.reader.batches()
+        self.golden.refresh()  # a new or rebuilt profile applies from this cycle on
         t_read = time.perf_counter()
         batch_rows, est_rows, kin_rows, changes, wb_items = [], [], [], [], []
         by_unit: dict = {}
@@ -152,13 +155,16 @@ class Monitor:
                 key = (at, b.end_s, st.assay_t_s.tobytes(), st.assay_value.tobytes())
                 previous = self._last_estimate.get(b.batch)
                 if previous is not None and previous[0] == key:
-                    # nothing new for this batch: the same estimate; only staleness can change
-                    changes.extend(self._alerts(b, previous[1], now))
+                    # nothing new for this batch: the same estimate; staleness can change,
+                    # and the golden rules are judged against the profile of this cycle
+                    changes.extend(self._alerts(b, st, previous[1], key, now)[0])
                     continue
                 rc = self.cfg.recipe(b.recipe)
                 est = estimate(st, at, self.settings, safety=rc.safety)
                 self._last_estimate[b.batch] = (key, est)
-                est_rows.append(estimate_record(est))
+                found, golden = self._alerts(b, st, est, key, now)
+                changes.extend(found)
+                est_rows.append(estimate_record(est, golden=golden))
                 wb_items.append((b.unit, est_rows[-1]))
                 kin_rows.append(
                     {
@@ -168,7 +174,6 @@ class Monitor:
                         "first_used_s": at,
                     }
                 )
-                changes.extend(self._alerts(b, est, now))
                 if b.end_s is not None:
                     rep.completed.append(b.batch)
         rep.running = sum(1 for b in batches if b.end_s is None and b.batch in self.states)
@@ -187,6 +192,7 @@ class Monitor:
         for b in rep.completed:
             self.states.pop(b, None)
             self._last_estimate.pop(b, None)
+            self.golden.forget(b)
             self._store_running.discard(b)
         self._store_running.update(r["batch"] for r in batch_rows if r["state"] == "running")
         if self.writer is not None:
@@ -207,16 +213,25 @@ class Monitor:
         }
         return rep
 
-    def _alerts(self, b: Batch, est, now: float) -> list[dict]:
-        """Raise or clear the alert kinds the estimate shows (advisory)."""
-        conditions = alert_rules.evaluate(
-            est, running=b.end_s is None, now_s=now, stale_after_s=self._stale_after_s
-        )
+    def _alerts(self, b: Batch, st, est, key, now: float) -> tuple[list[dict], dict | None]:
+        """Raise or clear the alert kinds the estimate and the recipe's golden profile show
+        (advisory); also how far the batch is from the golden band (None: no profile)."""
         open_ids = {
             kind: row.get("id")
             for (batch, kind), row in self._open_alerts.items()
             if batch == b.batch
         }
+        unit = self.cfg.unit(b.unit)
+        golden = self.golden.golden_input(
+            st, est.at_s, key, open_ids, unit.temperature_unit if unit else "degC"
+        )
+        conditions = alert_rules.evaluate(
+            est,
+            running=b.end_s is None,
+            now_s=now,
+            stale_after_s=self._stale_after_s,
+            golden=golden,
+        )
         changes = alert_rules.alert_changes(b.batch, conditions, open_ids, est.at_s)
         for c in changes:
             if c["op"] == "raise":
@@ -225,7 +240,7 @@ class Monitor:
                 self._open_alerts = {
                     k: v for k, v in self._open_alerts.items() if v.get("id") != c["id"]
                 }
-        return changes
+        return changes, (band_summary(golden, conditions) if golden is not None else None)
 
     def refresh_alert_ids(self) -> None:
         self._open_alerts = {(a["batch"], a["kind"]): a for a in self.store.open_alerts()}
@@ -250,6 +265,7 @@ class Monitor:
         # nothing was committed: forget in-memory progress so the next cycle rebuilds
         self.states.clear()
         self._last_estimate.clear()
+        self.golden.clear()
         self.watermark = self.store.load_watermark()
         self._store_running = set(self.store.running_batches())
         self.refresh_alert_ids()
