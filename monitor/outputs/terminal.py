@@ -37,6 +37,7 @@ def status_table(doc: dict, zone: str, now_s: float | None = None) -> Table:
         ("T °C", "right"),
         ("P50 end", "right"),
         ("P10 - P90", "right"),
+        ("vs golden", "right"),
         ("alerts", "left"),
         ("data age", "right"),
     ):
@@ -66,10 +67,23 @@ def status_table(doc: dict, zone: str, now_s: float | None = None) -> Table:
             "-" if temp is None else f"{from_kelvin(temp, 'degC'):.1f}",
             p50,
             band,
+            golden_lag(r.get("golden")),
             ", ".join(r.get("alerts", [])) or "-",
             duration(max(ref - at, 0.0)),
         )
     return table
+
+
+def golden_lag(g: dict | None) -> str:
+    """How far a batch is from its golden band, compactly: "+38 min" behind the median
+    good batch ("!" when beyond the limit), "early" before conversion can be compared."""
+    if not g:
+        return "-"
+    lag = g.get("lag_min")
+    if lag is None:
+        return "early"
+    mark = "!" if "behind_profile" in g.get("off_profile", ()) else ""
+    return f"{lag:+.0f} min{mark}"
 
 
 def status_lines(doc: dict, zone: str, now_s: float) -> list[str]:
@@ -82,6 +96,7 @@ def status_lines(doc: dict, zone: str, now_s: float) -> list[str]:
             f"{r['unit']} {r['batch']} {r['recipe']} X={r['conversion']:.3f}"
             f"±{r['conversion_sd']:.3f} P50={r['predicted_end']} "
             f"P10={r['predicted_end_p10']} P90={r['predicted_end_p90']} "
+            f"golden_lag={golden_lag(r.get('golden')).replace(' ', '')} "
             f"alerts={','.join(r['alerts']) or '-'} data_age_min={age:.0f}"
         )
     return lines
