@@ -111,7 +111,9 @@ class GoldenCriteria:
 
     ``time_to_target_range_s``: (low, high) [s]; None = median ± 5 scaled MADs of the
     candidates (a robust cut of the unusual ones). ``problems``: data-problem kinds
-    that disqualify (`monitor.batch.figures.BatchFigures.problems`).
+    that disqualify (`monitor.batch.figures.BatchFigures.problems`); a period, when
+    given, holds batches started after ``started_after_s`` and ended before
+    ``ended_before_s`` [s].
     """
 
     require_target: bool = True
@@ -125,7 +127,7 @@ class GoldenCriteria:
         "events",
     )
     started_after_s: float | None = None
-    started_before_s: float | None = None
+    ended_before_s: float | None = None
 
 
 def select_golden(history: RecipeHistory, criteria: GoldenCriteria, named=None):
@@ -156,8 +158,8 @@ def select_golden(history: RecipeHistory, criteria: GoldenCriteria, named=None):
         reasons = []
         if criteria.started_after_s is not None and b.start_s < criteria.started_after_s:
             reasons.append("started before the period")
-        if criteria.started_before_s is not None and b.start_s >= criteria.started_before_s:
-            reasons.append("started after the period")
+        if criteria.ended_before_s is not None and b.end_s > criteria.ended_before_s:
+            reasons.append("ended after the period")
         best = max(f.final_conversion, f.last_assay_conversion or 0.0)
         if criteria.require_target and best < f.target_conversion:
             reasons.append(f"final conversion {best:.3f} below target {f.target_conversion:g}")
