@@ -2,11 +2,15 @@
 
 1. Generate the sample plant export if it is missing.
 2. Fit each recipe's kinetics from the batches completed before the replay.
-3. Replay the last part of the export into a live historian file, in ``seq``
+3. Build each recipe's golden profile from the good batches completed before the
+   replay (with the fitted kinetics), limits calibrated leave-one-batch-out.
+4. Replay the last part of the export into a live historian file, in ``seq``
    (arrival) order at an accelerated clock, while the real poll cycle runs on
-   it: the live table shows predicted end times converging as assays arrive.
-4. Summarise how each batch's forecast converged and what was written where.
-   (The generator's truth file is for tests only; the demo does not read it.)
+   it: the live table shows predicted end times converging as assays arrive and
+   how far each batch is from its golden band.
+5. Summarise how each batch's forecast converged, the alerts raised, and what was
+   written where. (The generator's truth file is for tests only; the demo does not
+   read it.)
 
 Advisory only: convmon is not a control or safety system.
 """
@@ -26,11 +30,14 @@ from sample_historian.replay import Replay, export_end
 from . import api
 from .config import config_from_dict
 from .fitting.job import fit_recipe
+from .fleet.golden import GoldenCriteria
+from .fleet.golden_job import build_golden
 from .historian.reader import HistorianReader
 from .outputs.terminal import console as board_console
 from .outputs.terminal import status_table
 from .service.cycle import Monitor
-from .timefmt import to_datetime
+from .store import Store
+from .timefmt import duration, to_datetime
 
 REPO = Path(__file__).resolve().parent.parent
 SAMPLE_DB = REPO / "sample_historian" / "plant.db"
@@ -80,6 +87,32 @@ def _fit_kinetics(out: Path, cfg_hist, before_s: float, log) -> dict[str, Path]:
     return found
 
 
+def _golden_profiles(cfg_hist, before_s: float, log) -> None:
+    """Each recipe's golden profile from its good batches completed before the replay."""
+    store = Store(cfg_hist.store.url)
+    try:
+        for recipe in cfg_hist.recipes:
+            t0 = time.perf_counter()
+            p = build_golden(
+                cfg_hist,
+                recipe,
+                store,
+                now_s=before_s,
+                criteria=GoldenCriteria(ended_before_s=before_s),
+            )
+            cal = p.calibration["all"]
+            log(
+                f"  {recipe}: v{p.version} from {len(p.batches)} good batches; median time to "
+                f"target {duration(p.finish.median_s)}, late after {duration(p.finish.limit_s)}; "
+                f"left out {len(p.selection.get('left_out', {}))} (later, unusual or with data "
+                f"problems); {cal['n_flagged']}/{cal['n']} golden batches would have alerted "
+                f"(target {p.calibration['target_rate']:.0%}) in "
+                f"{time.perf_counter() - t0:.1f} s"
+            )
+    finally:
+        store.close()
+
+
 def _kj(value: float | None, stderr: float | None) -> str:
     """Ea for the demo's log: "65.2 ± 0.4 kJ/mol", or why there is no estimate."""
     if value is None:
@@ -108,6 +141,8 @@ def run_demo(out_dir: str | Path = "var/demo", *, fast: bool = False, stream=Non
     hist_cfg = _config(out, SAMPLE_DB, {})
     log(f"1. fitting kinetics from history before {to_datetime(replay_start):%Y-%m-%d %H:%M} UTC")
     kinetics = _fit_kinetics(out, hist_cfg, replay_start, log)
+    log("2. golden profiles from the good batches completed before the replay")
+    _golden_profiles(_config(out, SAMPLE_DB, kinetics), replay_start, log)
     live_db = out / "live.db"
     cfg = _config(out, live_db, kinetics)
     tags = [u.temperature_tag for u in cfg.units]
@@ -117,7 +152,7 @@ def run_demo(out_dir: str | Path = "var/demo", *, fast: bool = False, stream=Non
     monitor = Monitor(cfg, clock=lambda: clock["t"])
     step_s = 3240.0 if not fast else 1800.0  # 54 plant-minutes a poll: 60 polls for 54 h
     ticks = int(span_h * 3600 / step_s)
-    log(f"2. replaying {span_h:g} plant-hours in {ticks} polls of {step_s / 60:g} plant-min")
+    log(f"3. replaying {span_h:g} plant-hours in {ticks} polls of {step_s / 60:g} plant-min")
     history: dict = {}
     t_wall = time.perf_counter()
     pace_s = 0.0 if fast else 0.8  # wall seconds a poll, so a person can watch it converge
@@ -142,11 +177,14 @@ def run_demo(out_dir: str | Path = "var/demo", *, fast: bool = False, stream=Non
     replay.close()
     wall = time.perf_counter() - t_wall
     summary = _summary(monitor, history, out, kinetics, wall)
-    log("3. how the forecasts converged (P50 and the P10-P90 width, first and last poll):")
+    log("4. how the forecasts converged (P50 and the P10-P90 width, first and last poll):")
     for line in summary["lines"]:
         log("   " + line)
+    log("5. alerts raised during the replay (advisory):")
+    for a in summary["alert_lines"] or ["none"]:
+        log("   " + a)
     log(
-        f"4. written: store {out / 'convmon.db'}, live historian {live_db}"
+        f"6. written: store {out / 'convmon.db'}, live historian {live_db}"
         + (f", kinetics {', '.join(str(p) for p in kinetics.values())}" if kinetics else "")
     )
     log("   next: convmon status --config <your plant.toml>; see README.md")
@@ -167,9 +205,13 @@ def _summary(monitor, history, out, kinetics, wall) -> dict:
             f"UTC over {len(pts)} polls; band {(ts(hi0) - ts(lo0)) / 60:.0f} -> "
             f"{(ts(hi1) - ts(lo1)) / 60:.0f} min"
         )
+    alerts = monitor.store.list_alerts()
+    alert_lines = [f"{a['batch']} {a['kind']}: {a['message']}" for a in alerts]
     shutil.copyfile(out / "convmon.db", out / "convmon-final.db")
     return {
         "lines": lines,
+        "alert_lines": alert_lines,
+        "alert_kinds": sorted({(a["batch"], a["kind"]) for a in alerts}),
         "estimates": counts["estimates"],
         "alerts": counts["alerts"],
         "batches": counts["batches"],

@@ -545,10 +545,10 @@ def test_junk_at_any_key_is_a_config_error_never_a_traceback(tmp_path_factory, w
 def test_golden_table_and_recipe_temperature_limits(tmp_path):
     """``[golden]`` and a recipe's ``temperature_limits`` (read in its ``plan_unit``)."""
     cfg = load_config(write_plant_config(tmp_path / "plant.db", tmp_path))
-    assert cfg.golden.false_alarm_rate == 0.05 and cfg.golden.min_batches == 5
+    assert cfg.golden.false_alarm_rate == 0.02 and cfg.golden.min_batches == 5
     assert cfg.recipe("DIM-7").temperature_limits_k == pytest.approx((283.15, 355.15))
     text = (tmp_path / "sample_plant.toml").read_text()
-    bad = text.replace("false_alarm_rate = 0.05", "false_alarm_rate = 1.5")
+    bad = text.replace("false_alarm_rate = 0.02", "false_alarm_rate = 1.5")
     (tmp_path / "bad.toml").write_text(bad)
     with pytest.raises(ConfigError, match="golden.false_alarm_rate"):
         load_config(tmp_path / "bad.toml")

@@ -7,6 +7,7 @@ Fan 1996 definition 7) on the same values, a general-purpose library.
 from __future__ import annotations
 
 import numpy as np
+import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
@@ -35,14 +36,23 @@ def test_quantiles_equal_numpy_on_each_column(v, qs, min_count):
             assert_allclose(got[:, j], np.quantile(col, qs), rtol=1e-12, atol=1e-9)
 
 
-@given(st.floats(0.0, 10.0), st.floats(-5.0, 0.0), st.floats(0.0, 4.0), st.floats(0.0, 4.0))
-def test_a_limit_widens_with_w_and_keeps_its_margin(med, below, w, margin):
-    q = med + below
-    low = bands.limit(med, q, w, margin, "low")
-    assert low <= q + 1e-12 and low <= med - margin + 1e-12
-    assert bands.limit(med, q, w + 1.0, margin, "low") <= low + 1e-12
-    high = bands.limit(med, med - below, w, margin, "high")
-    assert high >= med - below - 1e-12 and high >= med + margin - 1e-12
+@given(
+    st.floats(0.0, 10.0),
+    st.floats(0.0, 5.0),
+    st.floats(0.0, 5.0),
+    st.floats(0.1, 4.0),
+    st.floats(0.0, 4.0),
+)
+def test_a_fence_widens_with_k_and_keeps_its_margin(med, below, above, k, margin):
+    """Tukey's fences: Q1 - k IQR and Q3 + k IQR, never closer to the median than the
+    margin; k = 0 takes the quantile itself."""
+    q1, q3 = med - below, med + above
+    low = bands.limit(med, np.nan, q1, q3, k, margin, "low")
+    assert low == pytest.approx(min(q1 - k * (q3 - q1), med - margin))
+    assert bands.limit(med, np.nan, q1, q3, k + 1.0, margin, "low") <= low + 1e-12
+    high = bands.limit(med, np.nan, q1, q3, k, margin, "high")
+    assert high == pytest.approx(max(q3 + k * (q3 - q1), med + margin))
+    assert bands.limit(med, q3, q1, q3, 0.0, margin, "high") == max(q3, med + margin)
 
 
 def _traj(rate: float, n: int = 200, step: float = 60.0) -> Trajectory:
@@ -69,22 +79,24 @@ def test_behind_limits_are_numpy_quantiles_of_the_batches():
     x_levels = np.arange(0.05, 0.95, 0.05)
     t_to_x = bands.times_to(trajs, x_levels)
     lim = bands.behind_limits(
-        X, t_to_x, x_levels, 60.0, p=0.1, w=0.5, display_p=0.05,
+        X, t_to_x, x_levels, 60.0, p=0.1, fence=1.5, display_p=0.05,
         margin_x=0.0, margin_lag_s=0.0, min_count=3,
     )  # fmt: skip
     assert_allclose(lim.x_median, np.quantile(X, 0.5, axis=0))
     assert_allclose(lim.x_band_lo, np.quantile(X, 0.05, axis=0))
-    q = np.quantile(X, 0.1, axis=0)
-    assert_allclose(lim.x_limit, q - 0.5 * (lim.x_median - q))
+    q1, q3 = np.quantile(X, [0.25, 0.75], axis=0)
+    assert_allclose(lim.x_limit, q1 - 1.5 * (q3 - q1))  # Tukey's lower fence
     t_med = np.quantile(t_to_x, 0.5, axis=0)
     assert_allclose(lim.t_median, t_med)
-    t_q = np.quantile(t_to_x, 0.9, axis=0)
-    assert_allclose(lim.lag_limit_s, t_q + 0.5 * (t_q - t_med) - t_med)
+    t1, t3 = np.quantile(t_to_x, [0.25, 0.75], axis=0)
+    assert_allclose(lim.lag_limit_s, t3 + 1.5 * (t3 - t1) - t_med)
 
 
 def test_temperature_band_holds_its_last_value_past_the_batches():
     T = np.full((4, 10), np.nan)
     T[:, :6] = 340.0 + np.arange(4)[:, None] * 0.1
-    lim = bands.temperature_limits(T, 60.0, p=0.0, w=0.0, display_p=0.05, margin_k=1.0, min_count=3)
+    lim = bands.temperature_limits(
+        T, 60.0, p=0.0, fence=1.0, display_p=0.05, margin_k=1.0, min_count=3
+    )
     assert_allclose(lim.median[6:], lim.median[5])
     assert_allclose(lim.limit_lo, lim.median - 1.0)  # the margin, wider than the band

@@ -111,12 +111,12 @@ class ActivityLimits:
 
 @dataclass(frozen=True)
 class RuleLevel:
-    """What the calibration chose for one rule: the quantile ``p`` of the band the
-    limit starts from, the widening ``w`` beyond it (in units of the band's distance
-    from the median), persistence, and the hysteresis margin (rule units)."""
+    """What the calibration chose for one rule: the limit is the good batches' quantile
+    ``p`` on its side, or (``fence`` > 0) that many interquartile ranges outside the
+    quartile; persistence, and the hysteresis margin (rule units)."""
 
     p: float
-    w: float
+    fence: float
     persistence: Persistence
     clear_persistence: Persistence
     hysteresis: float
@@ -124,7 +124,7 @@ class RuleLevel:
     def to_dict(self) -> dict:
         return {
             "p": self.p,
-            "w": self.w,
+            "fence": self.fence,
             "persistence": self.persistence.to_dict(),
             "clear_persistence": self.clear_persistence.to_dict(),
             "hysteresis": self.hysteresis,
@@ -134,7 +134,7 @@ class RuleLevel:
     def from_dict(cls, d: dict) -> RuleLevel:
         return cls(
             float(d["p"]),
-            float(d["w"]),
+            float(d["fence"]),
             Persistence.from_dict(d["persistence"]),
             Persistence.from_dict(d["clear_persistence"]),
             float(d["hysteresis"]),

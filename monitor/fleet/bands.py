@@ -3,10 +3,12 @@
 A band is a pair of quantiles of the good batches at each point of a grid
 (``numpy.quantile``'s default, linear interpolation between order statistics:
 Hyndman & Fan, "Sample quantiles in statistical packages", Am. Stat. 50 (1996)
-361-365, definition 7). An alert limit starts at the band's quantile ``p`` on
-its side, is widened by ``w`` times that quantile's distance from the median,
-and is never closer to the median than ``margin`` (sensor noise and rounding
-would otherwise make a tight band cry wolf).
+361-365, definition 7). An alert limit is either the good batches' quantile
+``p`` on its side (``fence = 0``), or, beyond the band, a fence ``fence`` times
+the interquartile range outside the quartile on its side (Tukey's fences, which
+outliers among the good batches do not drag along: J. W. Tukey, Exploratory
+Data Analysis, 1977, ch. 2; from memory). It is never closer to the median than
+``margin`` (sensor noise and rounding would otherwise make a tight band cry wolf).
 """
 
 from __future__ import annotations
@@ -49,11 +51,16 @@ def quantiles(values: np.ndarray, qs: Sequence[float], min_count: int) -> np.nda
     return out
 
 
-def limit(median, q, w: float, margin: float, side: str):
-    """The alert limit on ``side`` ("low" or "high") from a quantile ``q``."""
+def limit(median, q, q1, q3, fence: float, margin: float, side: str):
+    """The alert limit on ``side`` ("low" or "high"): the quantile ``q`` when ``fence`` is
+    0, else the fence outside the quartile ``q1`` / ``q3``; at least ``margin`` from the
+    median."""
+    iqr = q3 - q1
     if side == "low":
-        return np.minimum(q - w * (median - q), median - margin)
-    return np.maximum(q + w * (q - median), median + margin)
+        base = q if fence == 0 else q1 - fence * iqr
+        return np.minimum(base, median - margin)
+    base = q if fence == 0 else q3 + fence * iqr
+    return np.maximum(base, median + margin)
 
 
 def stack(trajectories: Sequence[Trajectory], n_points: int, field: str) -> np.ndarray:
@@ -79,17 +86,17 @@ def behind_limits(
     step_s: float,
     *,
     p: float,
-    w: float,
+    fence: float,
     display_p: float,
     margin_x: float,
     margin_lag_s: float,
     min_count: int,
 ) -> BehindLimits:
     """Conversion band against time since start and time-to-X band against X."""
-    med, lo, hi, q = quantiles(X, [0.5, display_p, 1 - display_p, p], min_count)
-    t_med, t_hi, t_q = quantiles(t_to_x, [0.5, 1 - display_p, 1 - p], min_count)
-    x_limit = limit(med, q, w, margin_x, "low")
-    lag = limit(t_med, t_q, w, margin_lag_s, "high") - t_med
+    med, lo, hi, q, q1, q3 = quantiles(X, [0.5, display_p, 1 - display_p, p, 0.25, 0.75], min_count)
+    t_med, t_hi, t_q, t1, t3 = quantiles(t_to_x, [0.5, 1 - display_p, 1 - p, 0.25, 0.75], min_count)
+    x_limit = limit(med, q, q1, q3, fence, margin_x, "low")
+    lag = limit(t_med, t_q, t1, t3, fence, margin_lag_s, "high") - t_med
     keep = np.isfinite(t_med)
     return BehindLimits(
         step_s=step_s,
@@ -109,7 +116,7 @@ def temperature_limits(
     step_s: float,
     *,
     p: float,
-    w: float,
+    fence: float,
     display_p: float,
     margin_k: float,
     min_count: int,
@@ -117,8 +124,16 @@ def temperature_limits(
 ) -> TemperatureLimits:
     """The measured temperature band against time since start; held after the last
     point with enough batches (the plan holds its last temperature)."""
-    med, lo, hi, qlo, qhi = quantiles(T, [0.5, display_p, 1 - display_p, p, 1 - p], min_count)
-    out = [med, lo, hi, limit(med, qlo, w, margin_k, "low"), limit(med, qhi, w, margin_k, "high")]
+    med, lo, hi, qlo, qhi, q1, q3 = quantiles(
+        T, [0.5, display_p, 1 - display_p, p, 1 - p, 0.25, 0.75], min_count
+    )
+    out = [
+        med,
+        lo,
+        hi,
+        limit(med, qlo, q1, q3, fence, margin_k, "low"),
+        limit(med, qhi, q1, q3, fence, margin_k, "high"),
+    ]
     ok = np.flatnonzero(np.isfinite(med))
     if len(ok):
         last = ok[-1]
@@ -127,15 +142,21 @@ def temperature_limits(
     return TemperatureLimits(step_s, *out, recipe_limits_k=recipe_limits_k)
 
 
-def finish_limits(times_s, *, p: float, w: float, display_p: float, margin_s: float):
+def finish_limits(times_s, *, p: float, fence: float, display_p: float, margin_s: float):
     """Limit on the time to target [s] (later is late)."""
-    med, hi, q = np.quantile(np.asarray(times_s, float), [0.5, 1 - display_p, 1 - p])
-    return FinishLimits(float(med), float(hi), float(limit(med, q, w, margin_s, "high")))
+    med, hi, q, q1, q3 = np.quantile(
+        np.asarray(times_s, float), [0.5, 1 - display_p, 1 - p, 0.25, 0.75]
+    )
+    return FinishLimits(
+        float(med), float(hi), float(limit(med, q, q1, q3, fence, margin_s, "high"))
+    )
 
 
 def activity_limits(
-    activities, *, p: float, w: float, display_p: float, margin: float, z: float
+    activities, *, p: float, fence: float, display_p: float, margin: float, z: float
 ) -> ActivityLimits:
     """Limit on the activity (lower is low)."""
-    med, lo, q = np.quantile(np.asarray(activities, float), [0.5, display_p, p])
-    return ActivityLimits(float(med), float(lo), float(limit(med, q, w, margin, "low")), z)
+    med, lo, q, q1, q3 = np.quantile(np.asarray(activities, float), [0.5, display_p, p, 0.25, 0.75])
+    return ActivityLimits(
+        float(med), float(lo), float(limit(med, q, q1, q3, fence, margin, "low")), z
+    )

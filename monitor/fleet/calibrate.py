@@ -4,10 +4,10 @@ Each golden batch is replayed as the live monitor would have judged it: with
 the activity posterior of the assays sampled so far (one posterior per assay),
 the rules evaluated over its past, each against a profile built without it.
 For every rule the calibration walks a ladder of limits from tight to loose
-(band quantile ``p``, then widening ``w`` beyond the band) and, for each,
-persistence options from short to long, and keeps the first setting whose
-flagged batches, together with those of the rules already chosen, stay within
-the allowed share (``target_rate`` of the golden batches, rounded down). Rules
+(band quantile ``p``, then fences ``fence`` interquartile ranges outside the
+quartiles) and, for each, persistence options from short to long, and keeps the
+first setting whose flagged batches, together with those of the rules already
+chosen, stay within the allowed share (``target_rate`` of the golden batches, rounded down). Rules
 are chosen in priority order: behind profile, low activity, late finish,
 temperature off profile.
 
@@ -127,16 +127,16 @@ class Calibration:
     def _others(self, i: int):
         return np.arange(len(self.items)) != i
 
-    def signals(self, rule: str, p: float, w: float, hysteresis: float) -> list:
+    def signals(self, rule: str, p: float, fence: float, hysteresis: float) -> list:
         """Per golden batch, ``(batch, Runs, visible)`` of ``rule`` judged against the
-        limits ``(p, w)`` built without that batch."""
+        limits ``(p, fence)`` built without that batch."""
         gs = self.gs
         out = []
         for i, r in enumerate(self.replays):
             o = self._others(i)
             if rule == "behind_profile":
                 lim = bands.behind_limits(
-                    self.X[o], self.t_to_x[o], self.x_levels, self.step_s, p=p, w=w,
+                    self.X[o], self.t_to_x[o], self.x_levels, self.step_s, p=p, fence=fence,
                     display_p=gs.display_p, margin_x=gs.margin_x, margin_lag_s=gs.margin_lag_s,
                     min_count=gs.min_count,
                 )  # fmt: skip
@@ -147,14 +147,18 @@ class Calibration:
                 if r.end_s is None:
                     continue
                 lim = bands.finish_limits(
-                    self.ttt[o], p=p, w=w, display_p=gs.display_p, margin_s=gs.margin_finish_s
+                    self.ttt[o],
+                    p=p,
+                    fence=fence,
+                    display_p=gs.display_p,
+                    margin_s=gs.margin_finish_s,
                 )
                 up, down, _ = finish_signal(lim, hysteresis, r.end_s, r.start_s)
                 t, vis = r.t_s, r.visible.copy()
                 vis[: gs.min_assays] = False
             elif rule == "temperature_off_profile":
                 lim = bands.temperature_limits(
-                    self.T[o], self.step_s, p=p, w=w, display_p=gs.display_p,
+                    self.T[o], self.step_s, p=p, fence=fence, display_p=gs.display_p,
                     margin_k=gs.margin_k, min_count=gs.min_count,
                     recipe_limits_k=gs.recipe_limits_k,
                 )  # fmt: skip
@@ -165,8 +169,8 @@ class Calibration:
                 if not len(r.act_t):
                     continue
                 lim = bands.activity_limits(
-                    self.act[o], p=p, w=w, display_p=gs.display_p, margin=gs.margin_activity,
-                    z=gs.activity_z,
+                    self.act[o], p=p, fence=fence, display_p=gs.display_p,
+                    margin=gs.margin_activity, z=gs.activity_z,
                 )  # fmt: skip
                 up, down = activity_signal(lim, hysteresis, r.act_mean, r.act_sd)
                 t, vis = r.act_t, np.ones(len(r.act_t), bool)
@@ -190,30 +194,30 @@ class Calibration:
             h = gs.hysteresis[rule]
             chosen = None
             curve = []
-            for p, w in gs.ladder:
-                sig = self.signals(rule, p, w, h)
+            for p, fence in gs.ladder:
+                sig = self.signals(rule, p, fence, h)
                 counts = []
                 for per in options:
                     f = self.flagged(sig, per)
                     counts.append(len(f))
                     if len(union | f) <= allowed:
-                        chosen = (p, w, per, f)
+                        chosen = (p, fence, per, f)
                         break
-                curve.append([p, w, counts])
+                curve.append([p, fence, counts])
                 if chosen:
                     break
             feasible = chosen is not None
             if not feasible:  # even the loosest limit flags too many: keep the loosest
-                p, w = gs.ladder[-1]
-                chosen = (p, w, options[-1], f)
-            p, w, per, f = chosen
+                p, fence = gs.ladder[-1]
+                chosen = (p, fence, options[-1], f)
+            p, fence, per, f = chosen
             union |= f
-            levels[rule] = RuleLevel(p, w, per, per, h)
+            levels[rule] = RuleLevel(p, fence, per, per, h)
             figures[rule] = {
                 **binomial_figures(f, n),
                 "feasible": feasible,
                 "p": p,
-                "w": w,
+                "fence": fence,
                 "persistence": per.to_dict(),
                 "ladder": curve,
             }

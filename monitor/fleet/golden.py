@@ -29,19 +29,21 @@ from .history import RecipeHistory
 
 log = logging.getLogger(__name__)
 
-#: From tight to loose: band quantile p (0: the extreme good batch), widening w.
+#: Limits from tight to loose: the good batches' quantile p, then fences k interquartile
+#: ranges outside the quartile (for normal data: 1.28, 1.64, 1.96, then 2.0, 2.7, 3.4,
+#: 4.0, 4.7, 6.1, 7.4, 10.1 sd from the median).
 LADDER = (
     (0.10, 0.0),
     (0.05, 0.0),
     (0.025, 0.0),
-    (0.0, 0.0),
-    (0.0, 0.25),
-    (0.0, 0.5),
     (0.0, 1.0),
     (0.0, 1.5),
     (0.0, 2.0),
+    (0.0, 2.5),
     (0.0, 3.0),
+    (0.0, 4.0),
     (0.0, 5.0),
+    (0.0, 7.0),
 )
 
 
@@ -243,7 +245,7 @@ def build_profile(
             x_levels,
             step,
             p=lv["behind_profile"].p,
-            w=lv["behind_profile"].w,
+            fence=lv["behind_profile"].fence,
             margin_x=gs.margin_x,
             margin_lag_s=gs.margin_lag_s,
             min_count=gs.min_count,
@@ -253,19 +255,23 @@ def build_profile(
             cal.T,
             step,
             p=lv["temperature_off_profile"].p,
-            w=lv["temperature_off_profile"].w,
+            fence=lv["temperature_off_profile"].fence,
             margin_k=gs.margin_k,
             min_count=gs.min_count,
             recipe_limits_k=gs.recipe_limits_k,
             **kw,
         ),  # fmt: skip
         finish=bands.finish_limits(
-            ttt, p=lv["late_finish"].p, w=lv["late_finish"].w, margin_s=gs.margin_finish_s, **kw
+            ttt,
+            p=lv["late_finish"].p,
+            fence=lv["late_finish"].fence,
+            margin_s=gs.margin_finish_s,
+            **kw,
         ),
         activity=bands.activity_limits(
             cal.act,
             p=lv["low_activity"].p,
-            w=lv["low_activity"].w,
+            fence=lv["low_activity"].fence,
             margin=gs.margin_activity,
             z=gs.activity_z,
             **kw,

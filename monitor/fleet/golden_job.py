@@ -58,7 +58,7 @@ def show_golden(
     cfg: Config, recipe: str, store: Store, *, now_s: float, progress=None, model=None
 ) -> tuple[GoldenProfile, bool]:
     """``(profile, stored)``: the latest stored profile, else one built now and not stored."""
-    profile = store.latest_golden_profile(recipe)
+    profile = store.golden_profile(recipe)
     if profile is not None:
         return profile, True
     profile = build_golden(

@@ -56,7 +56,7 @@ def golden_json(profile: GoldenProfile, *, stored: bool, chart: str | None = Non
         "rules": {
             k: {
                 "quantile": v.p,
-                "widening": v.w,
+                "fence_iqr": v.fence,
                 "persistence_s": v.persistence.min_duration_s,
                 "persistence_count": v.persistence.min_count,
                 "hysteresis": v.hysteresis,
@@ -134,8 +134,8 @@ def golden_lines(
     cal = profile.calibration
     for k, lv in profile.rules.items():
         c = cal.get(k, {})
-        where = "extreme good batch" if lv.p == 0 else f"{lv.p:.1%} quantile"
-        widen = f", widened {lv.w:g}x" if lv.w else ""
+        where = f"quartile ± {lv.fence:g} IQR" if lv.fence else f"{lv.p:.1%} quantile"
+        widen = ""
         lines.append(
             f"  {_LABELS[k]:24s} {where + widen:33s} {_persistence(lv):18s} "
             f"{_rate(c)}" + ("" if c.get("feasible", True) else "  (target not met)")

@@ -36,8 +36,15 @@ class GoldenWatch:
         self._refused: set[tuple[str, int]] = set()
 
     def refresh(self) -> None:
-        """Load the latest profile of each recipe (one query a cycle)."""
-        self.profiles = self.store.latest_golden_profiles()
+        """The latest profile of each recipe: one small query a cycle, a profile read only
+        when its version changed."""
+        versions = self.store.golden_versions()
+        for recipe, version in versions.items():
+            have = self.profiles.get(recipe)
+            if have is None or have.version != version:
+                self.profiles[recipe] = self.store.golden_profile(recipe, version)
+        for recipe in set(self.profiles) - set(versions):
+            del self.profiles[recipe]
 
     def profile_for(self, recipe: str, kinetics_version: str) -> GoldenProfile | None:
         p = self.profiles.get(recipe)

@@ -16,6 +16,7 @@ from sqlalchemy.engine import Engine, make_url
 from sqlalchemy.exc import DBAPIError, SQLAlchemyError
 
 from ..errors import AlertNotFoundError, StoreError
+from . import fleet
 from .schema import migrate
 from .tables import (
     alerts,
@@ -206,6 +207,28 @@ class Store:
                 name: conn.execute(select(func.count()).select_from(table)).scalar_one()
                 for name, table in meta.tables.items()
             }
+
+    # golden profiles and per-batch figures (`monitor.store.fleet`)
+    def save_golden_profile(self, profile) -> int:
+        """Store a recipe's profile as its next version; returns the version number."""
+        return fleet.save_golden_profile(self.engine, profile)
+
+    def golden_versions(self) -> dict[str, int]:
+        """The latest profile version of each recipe."""
+        return fleet.golden_versions(self.engine)
+
+    def golden_profile(self, recipe: str, version: int | None = None):
+        """A recipe's profile (the latest unless ``version``), or None."""
+        return fleet.golden_profile(self.engine, recipe, version)
+
+    def save_figures(self, figures: list, *, now_s: float) -> None:
+        """Store (or replace) completed batches' figures."""
+        fleet.save_figures(self.engine, figures, now_s)
+
+    def load_figures(self, **where) -> dict:
+        """Stored figures by batch (``recipe``, ``batches``, ``kinetics_version``,
+        ``method`` narrow the choice)."""
+        return fleet.load_figures(self.engine, **where)
 
     def close(self) -> None:
         self.engine.dispose()

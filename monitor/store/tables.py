@@ -9,6 +9,7 @@ revision *and* a change here, in the same commit.
 from __future__ import annotations
 
 from sqlalchemy import Column, Double, Integer, MetaData, String, Table, Text, UniqueConstraint
+from sqlalchemy.dialects import mysql
 
 meta = MetaData()
 
@@ -88,4 +89,36 @@ heartbeat = Table(
     Column("cycles", Integer),
     Column("failed_cycles", Integer),
     Column("message", Text),
+)
+#: a document that may exceed 64 kB (MySQL/MariaDB TEXT)
+_DOCUMENT = Text().with_variant(mysql.MEDIUMTEXT(), "mysql", "mariadb")
+golden_profiles = Table(
+    "golden_profiles",
+    meta,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("recipe", String(64), nullable=False),
+    Column("version", Integer, nullable=False),
+    Column("created_at_s", Double),
+    Column("kinetics_version", String(32)),
+    Column("batches", Text),
+    Column("settings", Text),
+    Column("calibration", Text),
+    Column("doc", _DOCUMENT),
+    UniqueConstraint("recipe", "version", name="uq_golden_recipe_version"),
+)
+batch_figures = Table(
+    "batch_figures",
+    meta,
+    Column("batch", String(64), primary_key=True),
+    Column("recipe", String(64)),
+    Column("method", Integer),
+    Column("kinetics_version", String(32)),
+    Column("computed_at_s", Double),
+    Column("start_s", Double),
+    Column("end_s", Double),
+    Column("activity", Double),
+    Column("activity_sd", Double),
+    Column("time_to_target_s", Double),
+    Column("final_conversion", Double),
+    Column("doc", Text),
 )
