@@ -44,14 +44,15 @@ def test_quantiles_equal_numpy_on_each_column(v, qs, min_count):
     st.floats(0.0, 4.0),
 )
 def test_a_fence_widens_with_k_and_keeps_its_margin(med, below, above, k, margin):
-    """Tukey's fences: Q1 - k IQR and Q3 + k IQR, never closer to the median than the
-    margin; k = 0 takes the quantile itself."""
+    """The quantile moved outward by k interquartile ranges, never closer to the median
+    than the margin; k = 0 takes the quantile itself."""
     q1, q3 = med - below, med + above
-    low = bands.limit(med, np.nan, q1, q3, k, margin, "low")
-    assert low == pytest.approx(min(q1 - k * (q3 - q1), med - margin))
-    assert bands.limit(med, np.nan, q1, q3, k + 1.0, margin, "low") <= low + 1e-12
-    high = bands.limit(med, np.nan, q1, q3, k, margin, "high")
-    assert high == pytest.approx(max(q3 + k * (q3 - q1), med + margin))
+    q_lo, q_hi = q1 - 1.0, q3 + 1.0
+    low = bands.limit(med, q_lo, q1, q3, k, margin, "low")
+    assert low == pytest.approx(min(q_lo - k * (q3 - q1), med - margin))
+    assert bands.limit(med, q_lo, q1, q3, k + 1.0, margin, "low") <= low + 1e-12
+    high = bands.limit(med, q_hi, q1, q3, k, margin, "high")
+    assert high == pytest.approx(max(q_hi + k * (q3 - q1), med + margin))
     assert bands.limit(med, q3, q1, q3, 0.0, margin, "high") == max(q3, med + margin)
 
 
@@ -84,19 +85,19 @@ def test_behind_limits_are_numpy_quantiles_of_the_batches():
     )  # fmt: skip
     assert_allclose(lim.x_median, np.quantile(X, 0.5, axis=0))
     assert_allclose(lim.x_band_lo, np.quantile(X, 0.05, axis=0))
-    q1, q3 = np.quantile(X, [0.25, 0.75], axis=0)
-    assert_allclose(lim.x_limit, q1 - 1.5 * (q3 - q1))  # Tukey's lower fence
+    q, q1, q3 = np.quantile(X, [0.1, 0.25, 0.75], axis=0)
+    assert_allclose(lim.x_limit, q - 1.5 * (q3 - q1))
     t_med = np.quantile(t_to_x, 0.5, axis=0)
     assert_allclose(lim.t_median, t_med)
-    t1, t3 = np.quantile(t_to_x, [0.25, 0.75], axis=0)
-    assert_allclose(lim.lag_limit_s, t3 + 1.5 * (t3 - t1) - t_med)
+    t_q, t1, t3 = np.quantile(t_to_x, [0.9, 0.25, 0.75], axis=0)
+    assert_allclose(lim.lag_limit_s, t_q + 1.5 * (t3 - t1) - t_med)
 
 
 def test_temperature_band_holds_its_last_value_past_the_batches():
     T = np.full((4, 10), np.nan)
     T[:, :6] = 340.0 + np.arange(4)[:, None] * 0.1
     lim = bands.temperature_limits(
-        T, 60.0, p=0.0, fence=1.0, display_p=0.05, margin_k=1.0, min_count=3
+        T, 60.0, p=0.0, fence=0.0, display_p=0.05, margin_k=1.0, min_count=3
     )
     assert_allclose(lim.median[6:], lim.median[5])
     assert_allclose(lim.limit_lo, lim.median - 1.0)  # the margin, wider than the band

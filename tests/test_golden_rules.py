@@ -16,56 +16,15 @@ import pytest
 from monitor.batch import alert_rules
 from monitor.batch.alert_rules import GoldenInput
 from monitor.batch.estimator import estimate, posterior_for
-from monitor.batch.figures import hindsight
 from monitor.batch.golden_profile import GoldenProfile
 from monitor.batch.golden_signals import batch_past
-from monitor.batch.kinetics import Kinetics
 from monitor.batch.paths import activity_path
-from monitor.batch.settings import EstimatorSettings
-from monitor.batch.state import BatchState, RecipeModel
-from monitor.fleet.golden import build_profile
-from monitor.fleet.history import HistoryItem, RecipeHistory
-from monitor.historian.model import Batch
-
-K_REF, T_REF, C_A0 = 6e-4, 343.15, 1.5
-KIN = Kinetics("power", K_REF, T_REF, 65e3, order=2.0, activity_sd=0.06)
-PLAN = ((0.0, 303.15), (2400.0, 343.15))
-RECIPE = RecipeModel("SYN", KIN, 0.95, "conversion", 0.01, C_A0, PLAN)
-SETTINGS = EstimatorSettings(monte_carlo_draws=200)
-ASSAY_EVERY_S = 2700.0
-END_S = 8.5 * 3600.0
-
-
-def plan_T(t, shift=None):
-    T = np.interp(t, [p[0] for p in PLAN], [p[1] for p in PLAN])
-    if shift is not None:
-        a, b, dT = shift
-        T = np.where((t >= a) & (t < b), T + dT, T)
-    return T
-
-
-def make_batch(name, alpha, rng, *, until=END_S, shift=None, start=0.0):
-    """A batch started at ``start`` [s], data up to ``until`` after its start."""
-    st = BatchState(name, "R1", RECIPE, start, C_A0, end_s=start + END_S)
-    t = np.arange(0.0, until + 1.0, 10.0)
-    T = plan_T(t, shift)
-    st.add_temperature(start + t, T)
-    ta = np.arange(ASSAY_EVERY_S, until + 1.0, ASSAY_EVERY_S)
-    x = st.conversion_at(start + ta, np.array([alpha]))[0] if len(ta) else np.empty(0)
-    st.add_assays(start + ta, np.clip(x + rng.normal(0, 0.01, len(ta)), 0, 1))
-    return st
+from tests.golden_synthetic import SETTINGS, make_batch, synthetic_profile
 
 
 @pytest.fixture(scope="module")
 def profile() -> GoldenProfile:
-    rng = np.random.default_rng(20261201)
-    items = []
-    for i, a in enumerate(np.exp(rng.normal(0.0, 0.06, 14))):
-        st = make_batch(f"G{i:02d}", a, rng, start=i * 86400.0)
-        b = Batch(st.batch, "R1", "SYN", st.start_s, st.end_s)
-        items.append(HistoryItem(b, st, hindsight(st, SETTINGS)))
-    history = RecipeHistory("SYN", RECIPE, tuple(items), ())
-    return build_profile(history, estimator=SETTINGS, created_at_s=0.0)
+    return synthetic_profile()
 
 
 def judge(st, profile, at_rel_s, open_kinds=frozenset(), unit="degC"):

@@ -112,8 +112,8 @@ class ActivityLimits:
 @dataclass(frozen=True)
 class RuleLevel:
     """What the calibration chose for one rule: the limit is the good batches' quantile
-    ``p`` on its side, or (``fence`` > 0) that many interquartile ranges outside the
-    quartile; persistence, and the hysteresis margin (rule units)."""
+    ``p`` on its side (0: the extreme good batch) moved outward by ``fence``
+    interquartile ranges; persistence, and the hysteresis margin (rule units)."""
 
     p: float
     fence: float

@@ -3,12 +3,14 @@
 A band is a pair of quantiles of the good batches at each point of a grid
 (``numpy.quantile``'s default, linear interpolation between order statistics:
 Hyndman & Fan, "Sample quantiles in statistical packages", Am. Stat. 50 (1996)
-361-365, definition 7). An alert limit is either the good batches' quantile
-``p`` on its side (``fence = 0``), or, beyond the band, a fence ``fence`` times
-the interquartile range outside the quartile on its side (Tukey's fences, which
-outliers among the good batches do not drag along: J. W. Tukey, Exploratory
-Data Analysis, 1977, ch. 2; from memory). It is never closer to the median than
-``margin`` (sensor noise and rounding would otherwise make a tight band cry wolf).
+361-365, definition 7). An alert limit is the good batches' quantile ``p`` on
+its side (``p = 0``: the extreme good batch), moved outward by ``fence``
+interquartile ranges. The interquartile range is the spread an outlier among the
+good batches does not inflate (the scale of Tukey's fences: J. W. Tukey,
+Exploratory Data Analysis, 1977, ch. 2; from memory); starting from the
+extreme keeps a minority of good batches (another unit's slower heat-up) inside.
+A limit is never closer to the median than ``margin`` (sensor noise and rounding
+would otherwise make a tight band cry wolf).
 """
 
 from __future__ import annotations
@@ -52,15 +54,12 @@ def quantiles(values: np.ndarray, qs: Sequence[float], min_count: int) -> np.nda
 
 
 def limit(median, q, q1, q3, fence: float, margin: float, side: str):
-    """The alert limit on ``side`` ("low" or "high"): the quantile ``q`` when ``fence`` is
-    0, else the fence outside the quartile ``q1`` / ``q3``; at least ``margin`` from the
-    median."""
+    """The alert limit on ``side`` ("low" or "high"): the quantile ``q`` moved outward by
+    ``fence`` interquartile ranges (``q3 - q1``); at least ``margin`` from the median."""
     iqr = q3 - q1
     if side == "low":
-        base = q if fence == 0 else q1 - fence * iqr
-        return np.minimum(base, median - margin)
-    base = q if fence == 0 else q3 + fence * iqr
-    return np.maximum(base, median + margin)
+        return np.minimum(q - fence * iqr, median - margin)
+    return np.maximum(q + fence * iqr, median + margin)
 
 
 def stack(trajectories: Sequence[Trajectory], n_points: int, field: str) -> np.ndarray:

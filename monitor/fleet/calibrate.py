@@ -4,8 +4,8 @@ Each golden batch is replayed as the live monitor would have judged it: with
 the activity posterior of the assays sampled so far (one posterior per assay),
 the rules evaluated over its past, each against a profile built without it.
 For every rule the calibration walks a ladder of limits from tight to loose
-(band quantile ``p``, then fences ``fence`` interquartile ranges outside the
-quartiles) and, for each, persistence options from short to long, and keeps the
+(band quantile ``p``, then the extreme good batch moved outward by ``fence``
+interquartile ranges) and, for each, persistence options from short to long, and keeps the
 first setting whose flagged batches, together with those of the rules already
 chosen, stay within the allowed share (``target_rate`` of the golden batches, rounded down). Rules
 are chosen in priority order: behind profile, low activity, late finish,

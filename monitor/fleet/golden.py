@@ -29,21 +29,20 @@ from .history import RecipeHistory
 
 log = logging.getLogger(__name__)
 
-#: Limits from tight to loose: the good batches' quantile p, then fences k interquartile
-#: ranges outside the quartile (for normal data: 1.28, 1.64, 1.96, then 2.0, 2.7, 3.4,
-#: 4.0, 4.7, 6.1, 7.4, 10.1 sd from the median).
+#: Limits from tight to loose: the good batches' quantile p (0: the extreme good batch),
+#: moved outward by a number of interquartile ranges (for normal data one IQR is 1.35 sd).
 LADDER = (
     (0.10, 0.0),
     (0.05, 0.0),
     (0.025, 0.0),
+    (0.0, 0.0),
+    (0.0, 0.25),
+    (0.0, 0.5),
     (0.0, 1.0),
     (0.0, 1.5),
     (0.0, 2.0),
-    (0.0, 2.5),
     (0.0, 3.0),
-    (0.0, 4.0),
     (0.0, 5.0),
-    (0.0, 7.0),
 )
 
 

@@ -44,7 +44,8 @@ class RecipeHistory:
 def select_batches(
     batches: Iterable[Batch], recipe: str, names: Iterable[str] | None = None
 ) -> list[Batch]:
-    """The recipe's completed batches, or the ones named (each must exist and be complete)."""
+    """The recipe's completed batches, or the ones named (each must exist and be complete),
+    in start order."""
     mine = [b for b in batches if b.recipe == recipe]
     if names is None:
         return [b for b in mine if b.end_s is not None]
@@ -57,7 +58,7 @@ def select_batches(
         if b.end_s is None:
             raise UsageError(f"batch {name!r} is still running: hindsight needs a complete batch")
         out.append(b)
-    return out
+    return sorted(out, key=lambda b: (b.start_s, b.batch))
 
 
 def batch_hindsight(

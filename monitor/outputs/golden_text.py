@@ -134,7 +134,9 @@ def golden_lines(
     cal = profile.calibration
     for k, lv in profile.rules.items():
         c = cal.get(k, {})
-        where = f"quartile ± {lv.fence:g} IQR" if lv.fence else f"{lv.p:.1%} quantile"
+        where = "extreme good batch" if lv.p == 0 else f"{lv.p:.1%} quantile"
+        if lv.fence:
+            where += f" + {lv.fence:g} IQR"
         widen = ""
         lines.append(
             f"  {_LABELS[k]:24s} {where + widen:33s} {_persistence(lv):18s} "
