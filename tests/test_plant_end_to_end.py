@@ -109,13 +109,12 @@ def test_run_once_twice_adds_nothing_the_second_time(sample_plant, tmp_path):
     assert (again.store.heartbeat()["cycles"], once.store.heartbeat()["cycles"]) == (2, 1)
 
 
-def test_second_run_on_same_store_refuses(sample_plant, tmp_path, monkeypatch):
+def test_second_run_on_same_store_refuses(sample_plant):
     from monitor.errors import LockError
-    from monitor.service.lock import StoreLock
+    from monitor.service.lock import store_lock
 
-    monkeypatch.setenv("CONVMON_LOCK_DIR", str(tmp_path))
     cfg = load_config(sample_plant.config_path)
-    with StoreLock(cfg), pytest.raises(LockError), StoreLock(cfg):
+    with store_lock(cfg.store.url), pytest.raises(LockError), store_lock(cfg.store.url):
         pass
 
 

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import json
-import os
 import signal
 import subprocess
 import sys
@@ -24,12 +23,10 @@ def _config(sample_plant, tmp_path) -> str:
 
 def test_run_polls_on_schedule_and_stops_on_sigterm(sample_plant, tmp_path):
     cfg = _config(sample_plant, tmp_path)
-    env = {**os.environ, "CONVMON_LOCK_DIR": str(tmp_path)}
     proc = subprocess.Popen(
         [sys.executable, "-m", "monitor", "run", "--config", cfg],
         stderr=subprocess.PIPE,
         text=True,
-        env=env,
     )
     try:
         deadline = time.time() + 60
@@ -42,7 +39,7 @@ def test_run_polls_on_schedule_and_stops_on_sigterm(sample_plant, tmp_path):
                 if beat["cycles"] >= 2:
                     break
         assert beat and beat["cycles"] >= 2 and beat["last_good_cycle"]
-        second = convmon("run", "--once", "--config", cfg, env={"CONVMON_LOCK_DIR": str(tmp_path)})
+        second = convmon("run", "--once", "--config", cfg)
         assert second.exit_code == 3 and "already" in second.stderr
         proc.send_signal(signal.SIGTERM)
         assert proc.wait(timeout=30) == 0

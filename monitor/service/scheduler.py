@@ -10,9 +10,9 @@ from apscheduler.events import EVENT_JOB_MAX_INSTANCES, EVENT_JOB_MISSED
 from apscheduler.schedulers.blocking import BlockingScheduler
 
 from ..config import Config
-from ..errors import ConfigError
+from ..errors import ConfigError, LockError, StoreError
 from .cycle import CycleReport, Monitor
-from .lock import StoreLock
+from .lock import store_lock
 
 log = logging.getLogger(__name__)
 
@@ -23,9 +23,9 @@ def _check(cfg: Config) -> None:
 
 
 def run_once(cfg: Config) -> CycleReport:
-    """``convmon run --once``: one cycle under the store lock; raises on failure."""
+    """``convmon run --once``: one cycle under the store's lock; raises on failure."""
     _check(cfg)
-    with StoreLock(cfg):
+    with store_lock(cfg.store.url):
         rep = Monitor(cfg).cycle()
     log.info(
         "one cycle: %d rows read, %d running, %d estimates added",
@@ -37,13 +37,33 @@ def run_once(cfg: Config) -> CycleReport:
 
 
 def run_service(cfg: Config) -> None:
-    """``convmon run``: APScheduler 3 interval job, one instance, clean shutdown."""
+    """``convmon run``: APScheduler 3 interval job, one instance, clean shutdown.
+
+    The store's lock is held for the life of the service and checked before each cycle:
+    a lock that was lost (its connection dropped) and taken by another monitor stops
+    this one with `LockError`, rather than two monitors writing one store.
+    """
     _check(cfg)
-    with StoreLock(cfg):
+    with store_lock(cfg.store.url) as lock:
         monitor = Monitor(cfg)
         sched = BlockingScheduler(timezone="UTC")
+        lost: list[LockError] = []
+
+        def cycle() -> None:
+            try:
+                lock.check()
+            except LockError as exc:
+                log.error("stopping: %s", exc)
+                lost.append(exc)
+                sched.shutdown(wait=False)
+                return
+            except StoreError as exc:  # the store is down: no cycle could commit anyway
+                log.warning("cycle skipped: %s", exc)
+                return
+            monitor.run_cycle_safely()
+
         sched.add_job(
-            monitor.run_cycle_safely,
+            cycle,
             "interval",
             seconds=cfg.poll.interval_s,
             max_instances=1,
@@ -62,6 +82,8 @@ def run_service(cfg: Config) -> None:
         signal.signal(signal.SIGTERM, stop)
         signal.signal(signal.SIGINT, stop)
         sched.start()
+    if lost:
+        raise lost[0]
 
 
 def _log_skipped(event) -> None:
