@@ -117,7 +117,9 @@ def _schema_diffs(engine) -> list:
 def test_revisions_build_the_head_schema_and_go_back(store_url):
     engine = create_engine(store_url)
     try:
-        assert migrate(engine) == list(MIGRATIONS) == ["0001", "0002", "0003", "0004"]
+        assert (
+            migrate(engine) == list(MIGRATIONS) == ["0001", "0002", "0003", "0004", "0005", "0006"]
+        )
         assert _schema_diffs(engine) == []
         assert migrate(engine) == []  # at head: nothing to do
         with engine.begin() as conn:
@@ -145,7 +147,7 @@ def _fill_first_revision(engine) -> dict:
         ],
         "alerts": [
             {"batch": "B-1", "kind": "lagging", "severity": "warning",
-             "state": "open", "raised_at_s": T0, "cleared_at_s": None, "acked_by": None,
+             "state": "open", "raised_at_s": T0, "cleared_at_s": None, "acked_by": "night shift",
              "message": "behind the golden profile"},
         ],
         "watermarks": [{"name": "historian", "value": '{"mode": "seq", "seq": 41}'}],
@@ -165,12 +167,28 @@ def _fill_first_revision(engine) -> dict:
     return {n: [{**r, "id": 1} if n in ids else r for r in rs] for n, rs in rows.items()}
 
 
+def _at_head(written: dict) -> dict:
+    """Rows of revision 0001 as the later revisions leave them: 0005 gives estimates an
+    empty ``config_version`` and ``computed_s`` = ``at_s``; 0006 moves ``acked_by`` into
+    ``alert_acks`` (one row per name, its time unknown)."""
+    out = {n: [dict(r) for r in rows] for n, rows in written.items()}
+    for e in out["estimates"]:
+        e.update(config_version="", computed_s=e["at_s"])
+    out["alert_acks"] = [
+        {"id": i, "alert_id": a["id"], "acked_by": a["acked_by"], "acked_at_s": None, "note": None}
+        for i, a in enumerate((a for a in out["alerts"] if a["acked_by"] is not None), start=1)
+    ]
+    for a in out["alerts"]:
+        del a["acked_by"]
+    return out
+
+
 def _assert_kept_and_usable(url: str, written: dict) -> None:
     """The rows written at an old revision, after opening the store at head."""
     store = Store(url)
     try:
         got = read_store(store)
-        for table, rows in written.items():
+        for table, rows in _at_head(written).items():
             assert sorted(got[table].values(), key=repr) == sorted(rows, key=repr), table
         assert store.load_watermark() == {"mode": "seq", "seq": 41}
         assert store.running_batches() == ["B-1"]
@@ -182,7 +200,8 @@ def _assert_kept_and_usable(url: str, written: dict) -> None:
             watermark={"mode": "seq", "seq": 42},
             batch_rows=[],
             estimate_rows=[
-                {k: v for k, v in written["estimates"][0].items() if k != "id"} | {"at_s": fine}
+                {k: v for k, v in written["estimates"][0].items() if k != "id"}
+                | {"at_s": fine, "config_version": "", "computed_s": fine}
             ],
             alert_changes=[],
             kinetics_rows=[],
@@ -288,6 +307,8 @@ def _estimate_row(batch: str, at_s: float, end_s: float) -> dict:
         "warnings": "[]",
         "kinetics_version": "v1",
         "doc": "{}",
+        "config_version": "c1",
+        "computed_s": at_s,
     }
 
 
@@ -325,7 +346,7 @@ def test_store_keeps_epoch_seconds_exactly(store_url):
             now_s=polls[-1],
             last_data_s=polls[-1],
         )
-        assert again["estimates"] == 0  # found again by its exact (batch, at_s)
+        assert again["estimates"] == 0  # found again by its exact key (batch, at_s, ...)
         dump = read_store(store)
         est = sorted(dump["estimates"].values(), key=lambda r: r["at_s"])
         assert [e["at_s"] for e in est] == polls

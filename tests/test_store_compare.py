@@ -52,6 +52,8 @@ def _store(tmp_path, name: str) -> Store:
                 "n_assays_used": 2,
                 "warnings": json.dumps(["assay at 06:10 is 4.25 sd from the model; not used"]),
                 "kinetics_version": "v1",
+                "config_version": "c1",
+                "computed_s": T0 + 60.0,
                 "doc": _doc(T0, T0 + 7200.25),
             }
         ],
@@ -148,7 +150,7 @@ def test_text_with_numbers_alerts_heartbeat_watermark_and_rows(pair):
     _set(
         b,
         "UPDATE estimates SET warnings = :w",
-        w=read_store(a)["estimates"][("B-1", T0)]["warnings"],
+        w=read_store(a)["estimates"][("B-1", T0, "v1", "c1")]["warnings"],
     )
     assert compare_stores(a, b) == []
     _set(b, "UPDATE heartbeat SET cycles = 2")

@@ -44,6 +44,7 @@ class Estimate:
     temperature_k: float | None = None
     mismatched_assays: list = field(default_factory=list)
     kinetics_version: str = ""
+    config_version: str = ""  # of the configuration around the kinetics (set by the caller)
     safety: dict = field(default_factory=dict)
     model_contradicted: bool = False
 

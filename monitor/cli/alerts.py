@@ -47,16 +47,25 @@ def list_(parent: dict, config: str | None, open_only: bool, as_json: bool) -> N
 
 
 @alerts.command(
-    "ack", example="convmon alerts ack 1 --by shift-lead --config config/sample_plant.toml"
+    "ack",
+    example="convmon alerts ack 1 --by shift-lead --note 'sampled again' "
+    "--config config/sample_plant.toml",
 )
 @click.argument("alert_id", metavar="ID", type=int)
 @click.option("--by", required=True, metavar="NAME", help="who acknowledges the alert")
+@click.option("--note", metavar="TEXT", help="what was seen or done (kept with the name)")
 @config_option
 @json_option
 @click.pass_obj
-def ack(parent: dict, alert_id: int, by: str, config: str | None, as_json: bool) -> None:
-    """Acknowledge alert ID: records who saw it. It stays active (and listed under
+def ack(
+    parent: dict, alert_id: int, by: str, note: str | None, config: str | None, as_json: bool
+) -> None:
+    """Acknowledge alert ID: who, when and a note are added to its history (a second
+    acknowledgement adds to it, never replaces). It stays active (and listed under
     --open) until its condition clears."""
-    a = api.ack_alert(load_config(config or parent["config"]), alert_id, by)
+    a = api.ack_alert(load_config(config or parent["config"]), alert_id, by, note)
+    n = len(a["acks"])
     text = f"alert {a['id']} ({a['kind']}, {a['batch']}) acknowledged by {a['acked_by']}"
+    if n > 1:
+        text += f" ({n} acknowledgements in all)"
     emit(a, text, as_json or parent["as_json"])

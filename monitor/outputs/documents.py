@@ -61,19 +61,20 @@ def estimate_json(e) -> dict:
         "warnings": list(e.warnings),
         "temperature_k": e.temperature_k,
         "kinetics_version": e.kinetics_version,
+        "config_version": e.config_version,
         "model_contradicted": e.model_contradicted,
     }
     doc.update(e.safety)
     return doc
 
 
-def estimate_record(e, *, golden: dict | None = None) -> dict:
+def estimate_record(e, *, golden: dict | None = None, computed_s: float | None = None) -> dict:
     """The flat record of an estimate (the store's row, the write-back's source).
 
     Times stay epoch seconds [s]; ``doc`` is the `estimate_json` document, so a
     reader of the store sees exactly what ``convmon estimate --json`` prints, plus,
     from the live monitor, ``golden``: how far the batch is from its recipe's golden
-    band.
+    band. ``computed_s``: when the estimate was computed (the poll cycle's clock).
     """
     doc = estimate_json(e)
     if golden is not None:
@@ -93,5 +94,7 @@ def estimate_record(e, *, golden: dict | None = None) -> dict:
         "n_assays_used": e.n_assays_used,
         "warnings": json.dumps(e.warnings),
         "kinetics_version": e.kinetics_version,
+        "config_version": e.config_version,
+        "computed_s": computed_s,
         "doc": json.dumps(_clean(doc), separators=(",", ":")),
     }

@@ -18,7 +18,6 @@ from ..batch import alert_rules
 from ..batch.estimator import estimate
 from ..batch.state import state_from_data
 from ..config import Config
-from ..config.models import recipe_model
 from ..errors import MonitorError
 from ..historian.model import Batch
 from ..historian.reader import HistorianReader
@@ -26,6 +25,7 @@ from ..outputs.documents import estimate_record
 from ..outputs.writeback import WriteBack
 from ..store import Store
 from .golden_watch import GoldenWatch, band_summary
+from .sources import Sources
 
 log = logging.getLogger(__name__)
 
@@ -52,8 +52,9 @@ class Monitor:
         store: Store | None = None,
         writer=None,
     ):
-        self.cfg = cfg
+        self.sources = Sources(cfg)
         self.clock = clock
+        self._own_reader = reader is None
         self.reader = reader or HistorianReader(cfg)
         self.store = store or Store(cfg.store.url)
         self.writer = writer
@@ -61,21 +62,48 @@ class Monitor:
             self.writer = WriteBack(cfg.writeback)
         self._wb_backlog: list = []
         self._last_estimate: dict = {}
-        # data older than this (by the injected clock) is stale: a gap, or the feed stopped
-        self._stale_after_s = max(cfg.estimator.max_gap_s, 3.0 * cfg.poll.interval_s)
-        self.settings = cfg.estimator
         self.states: dict = {}
-        self.models: dict = {}
+        self._basis: dict = {}  # batch -> (kinetics version, config version) of its state
         self.watermark = self.store.load_watermark()
         self._open_alerts = {(a["batch"], a["kind"]): a for a in self.store.open_alerts()}
         self._store_running = set(self.store.running_batches())
         self.golden = GoldenWatch(self.store, cfg.estimator)
         self._unmonitored: set[str] = set()  # batches already reported as not configured
 
-    def _model(self, recipe: str):
-        if recipe not in self.models:
-            self.models[recipe] = recipe_model(self.cfg, recipe)
-        return self.models[recipe]
+    @property
+    def cfg(self) -> Config:
+        """The configuration in use (re-read when its file changes: `Sources`)."""
+        return self.sources.cfg
+
+    @property
+    def settings(self):
+        return self.cfg.estimator
+
+    @property
+    def _stale_after_s(self) -> float:
+        """Data older than this (by the injected clock) is stale: a gap, or the feed stopped."""
+        return max(self.cfg.estimator.max_gap_s, 3.0 * self.cfg.poll.interval_s)
+
+    def _follow_sources(self) -> None:
+        """Changed configuration or kinetics files take effect: each batch whose state was
+        built with other kinetics or configuration is rebuilt from the historian and
+        re-estimated in this cycle, even without new data (#10)."""
+        old_units = self.cfg.units
+        if self.sources.refresh():
+            self.golden.settings = self.cfg.estimator
+            if self._own_reader and self.cfg.units != old_units:
+                self.reader.close()  # its tag-to-unit map is the old one
+                self.reader = HistorianReader(self.cfg)
+        for batch, state in list(self.states.items()):
+            try:
+                now = self.sources.basis(state.recipe.name, state.unit)
+            except MonitorError:  # recipe no longer configured: `_start_batch` says so
+                now = None
+            if now != self._basis.get(batch):
+                del self.states[batch]
+                self._last_estimate.pop(batch, None)
+                self._basis.pop(batch, None)
+                self.golden.forget(batch)  # its past was worked out with the old model
 
     def _start_batch(self, b: Batch, until_s: float | None = None):
         if self.cfg.recipe(b.recipe) is None or self.cfg.unit(b.unit) is None:
@@ -89,8 +117,9 @@ class Monitor:
                 )
             return None
         data = self.reader.read_batch(b, until_s=until_s)
-        state = state_from_data(data, self._model(b.recipe), self.cfg.estimator.max_gap_s)
+        state = state_from_data(data, self.sources.model(b.recipe), self.cfg.estimator.max_gap_s)
         self.states[b.batch] = state
+        self._basis[b.batch] = self.sources.basis(b.recipe, b.unit)
         return state
 
     def cycle(self) -> CycleReport:
@@ -98,6 +127,7 @@ class Monitor:
         rep = CycleReport()
         now = self.clock()
         t0 = time.perf_counter()
+        self._follow_sources()
         if self.watermark is None:
             running = [b for b in self.reader.batches()[0] if b.end_s is None]
             since = min((b.start_s for b in running), default=now)
@@ -161,10 +191,11 @@ class Monitor:
                     continue
                 rc = self.cfg.recipe(b.recipe)
                 est = estimate(st, at, self.settings, safety=rc.safety)
+                est.config_version = self._basis[b.batch][1]
                 self._last_estimate[b.batch] = (key, est)
                 found, golden = self._alerts(b, st, est, key, now)
                 changes.extend(found)
-                est_rows.append(estimate_record(est, golden=golden))
+                est_rows.append(estimate_record(est, golden=golden, computed_s=now))
                 wb_items.append((b.unit, est_rows[-1]))
                 kin_rows.append(
                     {
@@ -193,6 +224,7 @@ class Monitor:
             self.states.pop(b, None)
             self._last_estimate.pop(b, None)
             self.golden.forget(b)
+            self._basis.pop(b, None)
             self._store_running.discard(b)
         self._store_running.update(r["batch"] for r in batch_rows if r["state"] == "running")
         if self.writer is not None:
@@ -266,6 +298,7 @@ class Monitor:
         self.states.clear()
         self._last_estimate.clear()
         self.golden.clear()
+        self._basis.clear()
         self.watermark = self.store.load_watermark()
         self._store_running = set(self.store.running_batches())
         self.refresh_alert_ids()

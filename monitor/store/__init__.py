@@ -13,6 +13,7 @@ from .schema import (
 )
 from .store import Store, open_store
 from .tables import (
+    alert_acks,
     alerts,
     archive_index,
     batch_figures,
@@ -27,6 +28,7 @@ from .tables import (
 __all__ = [
     "MIGRATIONS",
     "Store",
+    "alert_acks",
     "alerts",
     "applied_migrations",
     "archive_index",

@@ -19,6 +19,7 @@ from ..errors import AlertNotFoundError, StoreError
 from . import fleet
 from .schema import migrate
 from .tables import (
+    alert_acks,
     alerts,
     batches,
     estimates,
@@ -85,8 +86,7 @@ class Store:
                 for a in alert_changes:
                     if a["op"] == "raise":
                         row = {k: v for k, v in a.items() if k != "op"}
-                        conn.execute(insert(alerts).values(**row))
-                        added["alerts"] += 1
+                        added["alerts"] += _raise_alert(conn, row)
                     else:
                         conn.execute(
                             update(alerts)
@@ -150,25 +150,37 @@ class Store:
         return self.list_alerts(open_only=True, batch=batch)
 
     def list_alerts(self, *, open_only: bool = False, batch: str | None = None) -> list[dict]:
+        """Alerts in the order raised, each with ``acks``: its acknowledgements, oldest
+        first (``acked_by``, ``acked_at_s``, ``note``)."""
         stmt = select(alerts)
         if open_only:
             stmt = stmt.where(alerts.c.state.in_(("open", "acked")))
         if batch:
             stmt = stmt.where(alerts.c.batch == batch)
         with self.engine.connect() as conn:
-            return [dict(r._mapping) for r in conn.execute(stmt.order_by(alerts.c.id))]
+            rows = [dict(r._mapping) for r in conn.execute(stmt.order_by(alerts.c.id))]
+            acks = _acks_of(conn, [r["id"] for r in rows])
+        for r in rows:
+            r["acks"] = acks.get(r["id"], [])
+        return rows
 
-    def ack_alert(self, alert_id: int, by: str) -> dict:
-        """Acknowledge an alert: who saw it is recorded; a cleared alert stays cleared."""
+    def ack_alert(self, alert_id: int, by: str, at_s: float, note: str | None = None) -> dict:
+        """Acknowledge an alert: one more row in its history (who, when, note), never a
+        replacement; a cleared alert stays cleared. Returns the alert with its ``acks``."""
         with self.engine.begin() as conn:
             row = conn.execute(select(alerts).where(alerts.c.id == alert_id)).first()
             if row is None:
                 raise AlertNotFoundError(f"no alert with id {alert_id}")
-            state = "acked" if row.state in ("open", "acked") else row.state
             conn.execute(
-                update(alerts).where(alerts.c.id == alert_id).values(acked_by=by, state=state)
+                insert(alert_acks).values(
+                    alert_id=alert_id, acked_by=by, acked_at_s=at_s, note=note
+                )
             )
-            return dict(conn.execute(select(alerts).where(alerts.c.id == alert_id)).one()._mapping)
+            if row.state == "open":
+                conn.execute(update(alerts).where(alerts.c.id == alert_id).values(state="acked"))
+            out = dict(conn.execute(select(alerts).where(alerts.c.id == alert_id)).one()._mapping)
+            out["acks"] = _acks_of(conn, [alert_id]).get(alert_id, [])
+            return out
 
     def running_batches(self) -> list[str]:
         with self.engine.connect() as conn:
@@ -178,7 +190,9 @@ class Store:
             ]
 
     def latest_estimates(self) -> list[dict]:
-        """The newest estimate of every batch still marked running."""
+        """The newest estimate of every batch still marked running: at its latest data
+        time, the one computed last (a re-estimate with changed kinetics or
+        configuration at the same data time replaces the earlier one here)."""
         with self.engine.connect() as conn:
             running = [
                 r[0]
@@ -193,7 +207,7 @@ class Store:
                 row = conn.execute(
                     select(estimates.c.doc)
                     .where(estimates.c.batch == b)
-                    .order_by(estimates.c.at_s.desc())
+                    .order_by(*_NEWEST_FIRST)
                     .limit(1)
                 ).first()
                 if row:
@@ -277,26 +291,87 @@ def _by_columns(rows: list[dict]) -> dict:
     return out
 
 
+#: The newest estimate first: latest data time, then last computed (then last stored).
+_NEWEST_FIRST = (estimates.c.at_s.desc(), estimates.c.computed_s.desc(), estimates.c.id.desc())
+
+#: What makes an estimate itself: its data time and what it was computed with.
+ESTIMATE_KEY = ("batch", "at_s", "kinetics_version", "config_version")
+
+
 def _insert_new_estimates(conn, estimate_rows: list[dict]) -> int:
-    """Insert the estimates whose (batch, at_s) is not stored yet; returns how many."""
-    keys = list(dict.fromkeys((e["batch"], e["at_s"]) for e in estimate_rows))
-    have = set()
+    """Insert the estimates whose key (`ESTIMATE_KEY`) is not stored yet; returns how many.
+
+    An estimate already stored (a cycle run again after a restart, or kinetics changed
+    back) is not added twice: its ``computed_s`` moves to the newer time, so it is the
+    newest computed again.
+    """
+    key_of = lambda e: tuple(e[k] for k in ESTIMATE_KEY)  # noqa: E731
+    have: dict = {}
+    keys = list(dict.fromkeys(key_of(e) for e in estimate_rows))
     for part in _chunks(keys):
-        stmt = select(estimates.c.batch, estimates.c.at_s).where(
+        stmt = select(estimates.c.id, estimates.c.computed_s, *estimates.c[ESTIMATE_KEY]).where(
             estimates.c.batch.in_(sorted({k[0] for k in part})),
             estimates.c.at_s.in_(sorted({k[1] for k in part})),
         )
-        have.update((r[0], r[1]) for r in conn.execute(stmt))
-    new, seen = [], set()
+        have.update((tuple(r[2:]), (r[0], r[1])) for r in conn.execute(stmt))
+    new, seen, touched = [], set(), []
     for e in estimate_rows:
-        key = (e["batch"], e["at_s"])
-        if key in have or key in seen:
+        key = key_of(e)
+        if key in seen:
             continue
         seen.add(key)
-        new.append(e)
+        if key not in have:
+            new.append(e)
+        elif e.get("computed_s") is not None and (have[key][1] or 0.0) < e["computed_s"]:
+            touched.append({"key_id": have[key][0], "computed_s": e["computed_s"]})
     for group in _by_columns(new).values():
         conn.execute(insert(estimates), group)
+    if touched:
+        conn.execute(
+            update(estimates)
+            .where(estimates.c.id == bindparam("key_id"))
+            .values(computed_s=bindparam("computed_s")),
+            touched,
+        )
     return len(new)
+
+
+def _raise_alert(conn, row: dict) -> int:
+    """Insert a raised alert; returns 1, or 0 when it reopens the alert of that batch and
+    kind raised at the same data time (the condition came back without new data, e.g.
+    after the kinetics changed and changed back)."""
+    same = conn.execute(
+        select(alerts.c.id).where(
+            alerts.c.batch == row["batch"],
+            alerts.c.kind == row["kind"],
+            alerts.c.raised_at_s == row["raised_at_s"],
+        )
+    ).first()
+    if same is None:
+        conn.execute(insert(alerts).values(**row))
+        return 1
+    conn.execute(
+        update(alerts)
+        .where(alerts.c.id == same[0])
+        .values(state="open", cleared_at_s=None, message=row.get("message"))
+    )
+    return 0
+
+
+def _acks_of(conn, alert_ids: list[int]) -> dict[int, list[dict]]:
+    """The acknowledgements of these alerts, oldest first, by alert id."""
+    out: dict = {}
+    for part in _chunks(alert_ids):
+        stmt = (
+            select(alert_acks)
+            .where(alert_acks.c.alert_id.in_(part))
+            .order_by(alert_acks.c.alert_id, alert_acks.c.id)
+        )
+        for r in conn.execute(stmt):
+            out.setdefault(r.alert_id, []).append(
+                {"acked_by": r.acked_by, "acked_at_s": r.acked_at_s, "note": r.note}
+            )
+    return out
 
 
 def _insert_new_kinetics(conn, kinetics_rows: list[dict]) -> None:

@@ -8,7 +8,17 @@ revision *and* a change here, in the same commit.
 
 from __future__ import annotations
 
-from sqlalchemy import Column, Double, Integer, MetaData, String, Table, Text, UniqueConstraint
+from sqlalchemy import (
+    Column,
+    Double,
+    ForeignKey,
+    Integer,
+    MetaData,
+    String,
+    Table,
+    Text,
+    UniqueConstraint,
+)
 from sqlalchemy.dialects import mysql
 
 meta = MetaData()
@@ -40,9 +50,13 @@ estimates = Table(
     Column("forecast_note", Text),
     Column("n_assays_used", Integer),
     Column("warnings", Text),
-    Column("kinetics_version", String(32)),
+    Column("kinetics_version", String(32), nullable=False),
     Column("doc", Text),
-    UniqueConstraint("batch", "at_s", name="uq_estimate_batch_at"),
+    Column("config_version", String(32), nullable=False),
+    Column("computed_s", Double),
+    UniqueConstraint(
+        "batch", "at_s", "kinetics_version", "config_version", name="uq_estimate_basis"
+    ),
 )
 alerts = Table(
     "alerts",
@@ -54,9 +68,17 @@ alerts = Table(
     Column("state", String(16)),
     Column("raised_at_s", Double),
     Column("cleared_at_s", Double),
-    Column("acked_by", String(64)),
     Column("message", Text),
     UniqueConstraint("batch", "kind", "raised_at_s", name="uq_alert"),
+)
+alert_acks = Table(
+    "alert_acks",
+    meta,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("alert_id", Integer, ForeignKey("alerts.id"), nullable=False, index=True),
+    Column("acked_by", Text, nullable=False),
+    Column("acked_at_s", Double),
+    Column("note", Text),
 )
 watermarks = Table(
     "watermarks", meta, Column("name", String(64), primary_key=True), Column("value", Text)
