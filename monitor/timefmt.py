@@ -67,17 +67,37 @@ def duration(seconds: float) -> str:
 
 
 def parse_time(text: str, zone: str) -> float:
-    """A time a user typed: ISO 8601 with offset, or naive in ``zone`` [s].
+    """A time a user typed: ISO 8601 with an offset (``2026-11-02T12:30+01:00``, ``…Z``),
+    or without one, read in ``zone`` (the site's zone) [s].
 
-    Raises `ValueError` naming what was expected.
+    A time without an offset that the zone skips (clocks jump forward) or has twice
+    (clocks go back) is refused: the message gives the offsets to choose from. Raises
+    `ValueError` naming what was expected.
+
+    Examples
+    --------
+    >>> parse_time("2026-11-02T12:30", "Europe/Berlin") == parse_time("2026-11-02T11:30Z", "UTC")
+    True
     """
     try:
-        dt = datetime.fromisoformat(text)
+        dt = datetime.fromisoformat(text.strip())
     except ValueError:
         raise ValueError(
-            f"expected an ISO 8601 time such as 2026-10-05T14:30 or 2026-10-05T14:30+02:00, "
-            f"got {text!r}"
+            f"expected an ISO 8601 time such as 2026-10-05T14:30 (in the site's zone) or "
+            f"2026-10-05T14:30+02:00, got {text!r}"
         ) from None
-    if dt.tzinfo is None:
-        dt = dt.replace(tzinfo=ZoneInfo(zone))
-    return to_epoch(dt)
+    if dt.tzinfo is not None:
+        return to_epoch(dt)
+    tz = ZoneInfo(zone)
+    first, second = dt.replace(tzinfo=tz, fold=0), dt.replace(tzinfo=tz, fold=1)
+    if first.utcoffset() != second.utcoffset():
+        if first.astimezone(UTC).astimezone(tz).replace(tzinfo=None) != dt:
+            raise ValueError(
+                f"{text!r} does not exist in {zone} (the clocks jump forward over it): "
+                "give a time with its offset"
+            )
+        raise ValueError(
+            f"{text!r} happens twice in {zone} (the clocks go back): give its offset, "
+            f"{first.isoformat(timespec='minutes')} or {second.isoformat(timespec='minutes')}"
+        )
+    return to_epoch(first)

@@ -21,14 +21,18 @@ from .common import command, config_option, emit, json_option
 @click.option(
     "--at",
     metavar="TIME",
-    help="look back: use only data up to TIME (ISO 8601; without an offset, site time)",
+    help="look back: use only data stamped up to TIME, ISO 8601 with an offset "
+    "(2026-11-02T12:30+01:00, or Z for UTC) or without one in the site's zone ([site] "
+    "timezone); not after the batch's last data",
 )
 @json_option
 def estimate(config: str | None, batch: str, at: str | None, as_json: bool) -> None:
     """Conversion now and predicted end time of one batch, read from the historian.
 
     A running batch is estimated at its last temperature sample, a complete one at
-    its end. Advisory only: not a control or safety system.
+    its end; --at looks back to an earlier moment (a time after the batch's last data
+    is refused: an estimate does not look ahead). Advisory only: not a control or
+    safety system.
     """
     cfg = load_config(config)
     at_s = api.parse_time(at, cfg.site.timezone) if at else None
