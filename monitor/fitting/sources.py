@@ -13,7 +13,8 @@ from pathlib import Path
 import numpy as np
 
 from ..config import Config
-from ..errors import ConfigError, DataQualityError, UsageError
+from ..config.models import require_recipe
+from ..errors import DataQualityError, UsageError
 from ..historian.reader import HistorianReader
 from ..physics.plant_fit import FitSeries, FitWarning
 from ..units import to_kelvin
@@ -38,14 +39,7 @@ LAB_ISOTHERMAL_SPREAD_K = 0.5
 
 def recipe_config(cfg: Config, recipe: str):
     """The recipe's ``[recipes.R]`` table; a configuration error names it when absent."""
-    rc = cfg.recipe(recipe)
-    if rc is None:
-        raise ConfigError(
-            f"recipe {recipe!r} has no [recipes.{recipe}] table",
-            path=cfg.path,
-            key=f"recipes.{recipe}",
-        )
-    return rc
+    return require_recipe(cfg, recipe)
 
 
 def select_batches(reader: HistorianReader, recipe: str, wanted: list[str] | None):

@@ -84,13 +84,15 @@ class SqliteFileLock(StoreLock):
         self._lock = filelock.FileLock(self.path, timeout=0, thread_local=False)
 
     def acquire(self) -> None:
-        self.path.parent.mkdir(parents=True, exist_ok=True)
         try:
+            self.path.parent.mkdir(parents=True, exist_ok=True)
             self._lock.acquire()
         except filelock.Timeout:
             raise _refused(self.url, f"lock file {self.path}") from None
         except OSError as exc:
-            raise StoreError(f"cannot create the lock file {self.path}: {exc.strerror}") from None
+            raise StoreError(
+                f"store {_shown(self.url)}: cannot create its lock file {self.path}: {exc.strerror}"
+            ) from None
 
     def check(self) -> None:
         if not self._lock.is_locked or not self.path.exists():

@@ -36,7 +36,13 @@ def open_store(url: str) -> Engine:
     """Open the store at ``url``, creating it or upgrading its schema to head if needed."""
     u = make_url(url)
     if u.get_backend_name() == "sqlite" and u.database and u.database != ":memory:":
-        Path(u.database).parent.mkdir(parents=True, exist_ok=True)
+        try:
+            Path(u.database).parent.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise StoreError(
+                f"store {u.render_as_string()}: cannot create its folder "
+                f"{Path(u.database).parent}: {exc.strerror}"
+            ) from None
     engine = create_engine(u, pool_pre_ping=True)
     try:
         migrate(engine)
