@@ -3,14 +3,17 @@
 from __future__ import annotations
 
 import json
-from datetime import datetime
+import tomllib
+from datetime import UTC, datetime
 
 import pytest
 
 from monitor.api import estimate_batch
 from monitor.config import load_config
 from monitor.service.cycle import Monitor
+from sample_historian.replay import LiveFile, Replay
 from tests.cli_runner import convmon
+from tests.fixtures_plant import PLANT_CONFIG, write_config
 from tests.store_compare import compare_stores
 
 
@@ -118,25 +121,82 @@ def test_second_run_on_same_store_refuses(sample_plant):
         pass
 
 
-def test_forecast_calibration_over_the_sample_history(sample_plant):
-    """Mid-batch (at the third assay) over every complete batch of the sample plant.
+#: P10-P90 coverage measured on the default sample plant with arrival honoured, and the
+#: batches it may move by (a change in the estimator, the forecast or the generator
+#: moves it a little; more is a change to look at, in either direction).
+CALIBRATION_INSIDE = 53  # regression (85 %)
+CALIBRATION_BATCHES = 62  # regression
+CALIBRATION_TOLERANCE = 3  # batches
+#: Mean and largest |X - X_true| at those moments, and how far they may move.
+CONVERSION_ERROR_MEAN = 0.0079  # regression
+CONVERSION_ERROR_MAX = 0.0435  # regression
 
-    The generator's truth is independent of the estimator (its own solve_ivp path). An
-    80 % band (P10-P90) should hold the true time to target in about 80 % of batches;
-    we require 60-95 % so the check is neither trivially passed nor flaky.
+
+def _iso_ms(t_s: float) -> str:
+    """Epoch seconds as the sample export writes times (ISO 8601, milliseconds, UTC)."""
+    return datetime.fromtimestamp(t_s, tz=UTC).isoformat(timespec="milliseconds")
+
+
+def _as_arrived(replay: Replay, tb: dict, tags: list[str], at_s: float, path) -> None:
+    """An export holding one batch's rows as they had *arrived* by plant time ``at_s``.
+
+    A row has arrived when its ``seq`` is at most that of the newest temperature row
+    stamped at or before ``at_s`` (`Replay.cut`, the rule of every replay); events up
+    to ``at_s``. Rows of the batch's unit from its start only: nothing else is read.
     """
-    from monitor.api import open_reader
+    live = LiveFile(path, replay.src)
+    cut = replay.cut(at_s)
+    start = datetime.fromisoformat(tb["start"]).timestamp()
+    marks = ",".join("?" * len(tags))
+    live.append_samples(
+        replay.src.execute(
+            "SELECT seq, tag, ts, value, quality FROM tag_samples "
+            f"WHERE seq <= ? AND tag IN ({marks}) AND ts >= ? AND ts <= ?",
+            (cut, *tags, _iso_ms(start), _iso_ms(at_s)),
+        ).fetchall()
+    )
+    live.append_events(
+        replay.src.execute(
+            "SELECT seq, batch_id, unit, recipe, event, ts FROM batch_events "
+            "WHERE batch_id = ? AND ts <= ?",
+            (tb["batch"], _iso_ms(at_s)),
+        ).fetchall()
+    )
+    live.close()
 
-    cfg = load_config(sample_plant.config_path)
-    reader = open_reader(cfg)
-    inside, dx, n = 0, [], 0
+
+def test_forecast_calibration_over_the_sample_history(sample_plant, tmp_path):
+    """Mid-batch, at the third assay's sample time, over every complete batch of the
+    sample plant, with only what had *arrived* in the historian by then.
+
+    The lab reports 20-60 min after sampling, so at that moment the third assay (and
+    often the second) is not in the export yet: the estimate is the one a live monitor
+    showed then (at the newest temperature sample), from the assays that had arrived.
+    The generator's truth is independent of the estimator (its own solve_ivp path); an
+    80 % band (P10-P90) should hold the true time to target in about 80 % of batches.
+    The count is pinned as a regression value with a tolerance of a few batches. (It
+    was computed before with every row stamped up to the sample time, arrived or not:
+    48 of 62, and only 60-95 % was asserted.)
+    """
+    plant = tomllib.loads(sample_plant.config_path.read_text())
+    tags_of = {
+        u["name"]: [u["temperature_tag"], u["assay_tag"], u["charge_tag"]] for u in plant["units"]
+    }
+    replay = Replay(
+        sample_plant.db_path, _Nowhere(), [u["temperature_tag"] for u in plant["units"]]
+    )
+    inside, dx, used, n = 0, [], [], 0
     try:
-        for tb in sample_plant.truth["batches"]:
+        for i, tb in enumerate(sample_plant.truth["batches"]):
             if tb["state"] != "complete" or len(tb["assays"]) < 4:
                 continue
             a = tb["assays"][2]
             at = datetime.fromisoformat(a["ts"]).timestamp() + 1.0
-            est, _ = estimate_batch(cfg, tb["batch"], at, reader=reader)
+            db = tmp_path / f"b{i}.db"
+            _as_arrived(replay, tb, tags_of[tb["unit"]], at, db)
+            cfg = load_config(write_config(PLANT_CONFIG, db, tmp_path / f"b{i}.toml"))
+            est, _ = estimate_batch(cfg, tb["batch"])  # running then: at its newest sample
+            assert at - 60.0 < est.at_s <= at
             t_true = datetime.fromisoformat(tb["time_to_target"]).timestamp()
             n += 1
             inside += (
@@ -144,12 +204,26 @@ def test_forecast_calibration_over_the_sample_history(sample_plant):
                 and est.predicted_end_p10_s <= t_true <= est.predicted_end_p90_s
             )
             dx.append(abs(est.conversion - a["true_conversion"]))
+            used.append(est.n_assays_used)
     finally:
-        reader.close()
-    assert n >= 40
+        replay.src.close()
     print(
-        f"\ncalibration: P10-P90 holds the true end in {inside}/{n} batches; "
-        f"|X - X_true| mean {sum(dx) / n:.4f}, max {max(dx):.4f}"
+        f"\ncalibration (arrival honoured): P10-P90 holds the true end in {inside}/{n} "
+        f"batches ({inside / n:.0%}); assays used {min(used)}-{max(used)} "
+        f"(mean {sum(used) / n:.2f}); |X - X_true| mean {sum(dx) / n:.4f}, max {max(dx):.4f}"
     )
-    assert 0.60 <= inside / n <= 0.95
-    assert max(dx) < 0.03
+    assert max(used) < 3  # the third assay had not arrived anywhere
+    assert n == CALIBRATION_BATCHES
+    assert abs(inside - CALIBRATION_INSIDE) <= CALIBRATION_TOLERANCE
+    assert sum(dx) / n == pytest.approx(CONVERSION_ERROR_MEAN, abs=0.002)
+    assert max(dx) == pytest.approx(CONVERSION_ERROR_MAX, abs=0.01)
+
+
+class _Nowhere:
+    """A replay destination that keeps nothing (only `Replay.cut` is used)."""
+
+    def append_samples(self, rows) -> None:
+        raise AssertionError("nothing is replayed here")
+
+    def append_events(self, rows) -> None:
+        raise AssertionError("nothing is replayed here")
