@@ -15,7 +15,12 @@ from .common import command, config_option
 def run(config: str | None, once: bool) -> None:
     """The live monitor: poll the historian every poll.interval_s, estimate each running
     batch, raise and clear alerts, keep the results in the store. Stop with Ctrl-C or
-    SIGTERM (the current cycle finishes)."""
+    SIGTERM (the current cycle finishes).
+
+    One monitor per store: a second run on the same store, from any configuration, is
+    refused (exit 3). A changed kinetics or configuration file is read at the next
+    cycle and the running batches it concerns are re-estimated ([historian], [store],
+    [poll] and [writeback] apply at the next start)."""
     cfg = load_config(config)
     if not once:
         run_service(cfg)
