@@ -48,10 +48,11 @@ class Sources:
         self._config_seen = _signature(cfg.path) if cfg.path else None
         self._kinetics: dict[Path, tuple[tuple | None, Kinetics]] = {}
         self._seen: dict[Path, tuple | None] = {}  # signature last looked at, loaded or not
+        self._config_versions: dict[tuple[str, str], str] = {}  # of the configuration in use
 
     def refresh(self) -> bool:
         """Re-read the files that changed since the last call; True if the configuration
-        in use was replaced (kinetics are re-read silently, by `model`'s callers' view)."""
+        in use was replaced. (Changed kinetics show in `basis`.)"""
         replaced = self._refresh_config()
         for rc in self.cfg.recipes.values():
             if rc.kinetics in self._kinetics:
@@ -84,6 +85,7 @@ class Sources:
             return False
         log.warning("configuration %s changed: running batches it concerns are re-estimated", path)
         self.cfg = new
+        self._config_versions.clear()
         return True
 
     def _refresh_kinetics(self, path: Path) -> None:
@@ -130,4 +132,7 @@ class Sources:
     def basis(self, recipe: str, unit: str) -> tuple[str, str]:
         """What an estimate of ``recipe`` on ``unit`` is computed with now:
         (kinetics version, configuration version)."""
-        return self.kinetics(recipe).version, config_version(self.cfg, recipe, unit)
+        key = (recipe, unit)
+        if key not in self._config_versions:
+            self._config_versions[key] = config_version(self.cfg, recipe, unit)
+        return self.kinetics(recipe).version, self._config_versions[key]
