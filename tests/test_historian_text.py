@@ -5,11 +5,12 @@ A hypothesis property pushes arbitrary batch ids (markup such as ``[/]`` and
 generated export whose events table holds them, one poll cycle, and the commands
 ``batches``, ``estimate``, ``status``, ``alerts`` and ``alerts ack`` (the id as the
 acknowledging name too): no crash, the id read back exactly from every JSON document,
-nothing written anywhere but the store. The same commands' text for people must not
-crash nor let a control character through (that rendering is the terminal screens'
-work: marked xfail while it still breaks). File names and HTML built from such text go
-through one helper each (`monitor.outputs.filenames`, `monitor.outputs.html_text`),
-checked here by properties of their own.
+nothing written anywhere but the store. ``fit --out`` (the file-writing command that
+reads historian text) runs over all the hostile ids at once. The same commands' text
+for people must not crash nor let a control character through (that rendering is the
+terminal screens' work: marked xfail while it still breaks). File names and HTML built
+from such text go through one helper each (`monitor.outputs.filenames`,
+`monitor.outputs.html_text`), checked here by properties of their own.
 """
 
 from __future__ import annotations
@@ -17,6 +18,7 @@ from __future__ import annotations
 import contextlib
 import json
 import re
+import tomllib
 from pathlib import Path
 
 import pytest
@@ -150,6 +152,24 @@ def test_any_batch_id_is_shown_to_people_without_crash_or_control(tmp_path_facto
             assert not RAW_CONTROL.search(r.stdout), (args[0], r.stdout)
             if args[0] == "estimate" and batch_id.isprintable() and len(batch_id) <= 40:
                 assert batch_id in r.stdout  # verbatim: "[rework]" is not markup
+
+
+def test_fit_over_hostile_batch_ids_writes_only_its_files(tmp_path, monkeypatch):
+    """The file-writing command that reads historian text (``fit --out``): every hostile
+    id a complete batch of the history; the fit lists them exactly, the kinetics file's
+    provenance reads them back exactly, and only the three named files are written."""
+    ids = [*HOSTILE, "$\\frac{x}{", "a$b$c_^{}"]
+    config = write_site(tmp_path / "site", [*ids, "running"])
+    monkeypatch.chdir(tmp_path)
+    before = _files(tmp_path)
+    r = convmon("fit", "--recipe", "AX", "--out", tmp_path / "out" / "k.toml",
+                "--config", config, "--json")  # fmt: skip
+    assert r.exit_code == 0, r.stderr
+    assert json.loads(r.stdout)["batches"] == ids
+    provenance = tomllib.loads((tmp_path / "out" / "k.toml").read_text())["provenance"]
+    assert provenance["batches"] == ids
+    assert _files(tmp_path) - before == {"out", "out/k.toml", "out/k_parity.png",
+                                         "out/k_residuals.png"}  # fmt: skip
 
 
 # ------------------------------------------------------------------ the two helpers

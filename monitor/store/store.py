@@ -307,19 +307,23 @@ ESTIMATE_KEY = ("batch", "at_s", "kinetics_version", "config_version")
 def _insert_new_estimates(conn, estimate_rows: list[dict]) -> int:
     """Insert the estimates whose key (`ESTIMATE_KEY`) is not stored yet; returns how many.
 
-    An estimate already stored (a cycle run again after a restart, or kinetics changed
-    back) is not added twice: its ``computed_s`` moves to the newer time, so it is the
-    newest computed again.
+    An estimate already stored is not added twice (a cycle run again after a restart).
+    When it is stored but another estimate of that batch and data time was computed
+    after it (kinetics changed, then changed back), its ``computed_s`` moves on, so it
+    is the newest computed again; otherwise it is left as it is.
     """
     key_of = lambda e: tuple(e[k] for k in ESTIMATE_KEY)  # noqa: E731
-    have: dict = {}
+    have: dict = {}  # key -> (id, computed_s)
+    latest: dict = {}  # (batch, at_s) -> the latest computed_s stored
     keys = list(dict.fromkeys(key_of(e) for e in estimate_rows))
     for part in _chunks(keys):
         stmt = select(estimates.c.id, estimates.c.computed_s, *estimates.c[ESTIMATE_KEY]).where(
             estimates.c.batch.in_(sorted({k[0] for k in part})),
             estimates.c.at_s.in_(sorted({k[1] for k in part})),
         )
-        have.update((tuple(r[2:]), (r[0], r[1])) for r in conn.execute(stmt))
+        for r in conn.execute(stmt):
+            have[tuple(r[2:])] = (r[0], r[1] or 0.0)
+            latest[r[2], r[3]] = max(latest.get((r[2], r[3]), 0.0), r[1] or 0.0)
     new, seen, touched = [], set(), []
     for e in estimate_rows:
         key = key_of(e)
@@ -328,7 +332,7 @@ def _insert_new_estimates(conn, estimate_rows: list[dict]) -> int:
         seen.add(key)
         if key not in have:
             new.append(e)
-        elif e.get("computed_s") is not None and (have[key][1] or 0.0) < e["computed_s"]:
+        elif e.get("computed_s") is not None and have[key][1] < latest[key[:2]]:
             touched.append({"key_id": have[key][0], "computed_s": e["computed_s"]})
     for group in _by_columns(new).values():
         conn.execute(insert(estimates), group)
