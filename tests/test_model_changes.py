@@ -178,3 +178,17 @@ def test_an_alert_raised_again_at_the_same_data_time_is_reopened(site):
     alerts = mon.store.list_alerts()
     assert sorted(a["kind"] for a in alerts) == kinds  # the same two rows, open again
     assert all(a["state"] == "open" and a["cleared_at_s"] is None for a in alerts)
+
+
+def test_a_restart_without_changes_leaves_the_estimates_as_they_were(site):
+    """A restarted monitor re-estimates its running batches (nothing in memory) and finds
+    each estimate stored: nothing added, nothing moved, at any clock."""
+    config, mon = site
+    before = _estimates(mon)
+    again = Monitor(load_config(config), clock=lambda: LAST + 3600.0)
+    try:
+        assert again.cycle().estimates_added == 0
+        assert _estimates(again) == before
+    finally:
+        again.store.close()
+        again.reader.close()
